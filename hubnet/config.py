@@ -1,0 +1,427 @@
+"""Scenario configuration: a TOML file -> a frozen :class:`ScenarioConfig`.
+
+A config names the input files and the model, distance and solver
+parameters. Unknown keys are errors (with a did-you-mean), values are
+checked for type and range, and every problem is reported at once with the
+config file, its line and the key. Scenario overrides are nested mappings
+merged on top of the base config before validation.
+
+Example
+-------
+.. code-block:: toml
+
+    [scenario]
+    name = "demo"
+
+    [inputs]
+    sites = "sites.csv"
+    demand = "demand.csv"
+    volume_unit = "pallets"
+
+    [model]
+    allocation = "single"
+    hubs = 3
+
+    [solver]
+    name = "highs"
+    time_limit_s = 60
+"""
+
+from __future__ import annotations
+
+import copy
+import difflib
+import re
+import tomllib
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Literal
+
+from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
+
+from hubnet.errors import InputError, Problem
+from hubnet.units import DEFAULT_CIRCUITY, VOLUME_UNITS
+
+Allocation = Literal["single", "multiple"]
+SolverName = Literal["highs", "cbc"]
+DistanceMethod = Literal["auto", "geodesic", "euclidean", "matrix"]
+
+
+# --------------------------------------------------------------------------
+# Frozen config objects used by the rest of hubnet
+# --------------------------------------------------------------------------
+
+
+@dataclass(frozen=True, slots=True)
+class InputFiles:
+    """Where the scenario's data lives (paths resolved against the config file).
+
+    Attributes
+    ----------
+    sites, demand
+        Site and demand tables (CSV, Excel or any format geopandas reads).
+    distances
+        Optional distance/time matrix in long form (origin, destination,
+        distance_km, optional hours).
+    volume_unit
+        The one unit all volumes are in.
+    allow_same_site_demand
+        Allow demand from a site to itself (routed via the site's hub).
+    sheet
+        Excel sheet or GIS layer name, when the file holds several.
+    """
+
+    sites: Path
+    demand: Path
+    distances: Path | None = None
+    volume_unit: str = "units"
+    allow_same_site_demand: bool = False
+    sheet: str | None = None
+
+
+@dataclass(frozen=True, slots=True)
+class DistanceParams:
+    """How leg distances are obtained.
+
+    Attributes
+    ----------
+    method
+        ``auto`` (the user matrix when given, else geodesic for lat/lon or
+        Euclidean for planar x/y), or one of ``geodesic``, ``euclidean``,
+        ``matrix``.
+    circuity
+        Road distance over geodesic distance (dimensionless, >= 1); not
+        applied to a user matrix or to planar benchmark data.
+    """
+
+    method: DistanceMethod = "auto"
+    circuity: float = DEFAULT_CIRCUITY
+
+
+@dataclass(frozen=True, slots=True)
+class HubModelParams:
+    """Parameters of the classic hub location model.
+
+    The cost of sending one unit from ``i`` via hubs ``k`` then ``m`` to
+    ``j`` is ``cost_per_unit_km * (collection_factor * d[i,k] +
+    transfer_factor * d[k,m] + distribution_factor * d[m,j])`` plus the
+    handling cost at each hub passed; each open hub adds its fixed cost.
+
+    Attributes
+    ----------
+    allocation
+        ``single``: every terminal sends and receives through one hub;
+        ``multiple``: each flow may use any open hubs.
+    hubs
+        Exact number of hubs to open (the p of the p-hub median), or
+        ``None`` to let hub fixed costs decide.
+    capacitated
+        Enforce each hub's sort capacity (single allocation only).
+    collection_factor, transfer_factor, distribution_factor
+        Dimensionless multipliers of distance on feeder legs into a hub,
+        trunk legs between hubs and feeder legs out of a hub. A transfer
+        factor below 1 models the economies of scale on trunks.
+    cost_per_unit_km
+        Currency per unit of volume per km.
+    """
+
+    allocation: Allocation = "single"
+    hubs: int | None = None
+    capacitated: bool = False
+    collection_factor: float = 1.0
+    transfer_factor: float = 0.75
+    distribution_factor: float = 1.0
+    cost_per_unit_km: float = 1.0
+
+
+@dataclass(frozen=True, slots=True)
+class SolverParams:
+    """Solver choice and stopping rules.
+
+    Attributes
+    ----------
+    name
+        ``highs`` (highspy) or ``cbc`` (bundled with PuLP).
+    time_limit_s
+        Wall-clock limit in seconds, or ``None`` for none.
+    gap
+        Relative MIP gap at which a plan counts as proven optimal.
+    threads
+        Solver threads, or ``None`` for the solver's default.
+    log
+        Show the solver's own log on the terminal.
+    """
+
+    name: SolverName = "highs"
+    time_limit_s: float | None = None
+    gap: float = 1e-6
+    threads: int | None = None
+    log: bool = False
+
+
+@dataclass(frozen=True, slots=True)
+class ScenarioConfig:
+    """A validated scenario: input files plus every parameter.
+
+    Attributes
+    ----------
+    name, description
+        Shown in outputs.
+    source
+        The config file this came from (``None`` when built in Python).
+    """
+
+    name: str
+    inputs: InputFiles
+    distances: DistanceParams = field(default_factory=DistanceParams)
+    model: HubModelParams = field(default_factory=HubModelParams)
+    solver: SolverParams = field(default_factory=SolverParams)
+    description: str = ""
+    source: Path | None = None
+
+
+# --------------------------------------------------------------------------
+# Schema of the TOML file (pydantic at the file boundary)
+# --------------------------------------------------------------------------
+
+
+class _Strict(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
+
+class _Scenario(_Strict):
+    name: str = Field(min_length=1)
+    description: str = ""
+
+
+class _Inputs(_Strict):
+    sites: str = Field(min_length=1)
+    demand: str = Field(min_length=1)
+    distances: str | None = None
+    volume_unit: str = "units"
+    allow_same_site_demand: bool = False
+    sheet: str | None = None
+
+    @model_validator(mode="after")
+    def _unit(self) -> _Inputs:
+        if self.volume_unit not in VOLUME_UNITS:
+            raise ValueError(
+                f"volume_unit must be one of {', '.join(VOLUME_UNITS)}, got {self.volume_unit!r}"
+            )
+        return self
+
+
+class _Distances(_Strict):
+    method: DistanceMethod = "auto"
+    circuity: float = Field(default=DEFAULT_CIRCUITY, ge=1.0, le=3.0)
+
+
+class _Model(_Strict):
+    allocation: Allocation = "single"
+    hubs: int | None = Field(default=None, ge=1)
+    capacitated: bool = False
+    collection_factor: float = Field(default=1.0, ge=0)
+    transfer_factor: float = Field(default=0.75, ge=0)
+    distribution_factor: float = Field(default=1.0, ge=0)
+    cost_per_unit_km: float = Field(default=1.0, gt=0)
+
+    @model_validator(mode="after")
+    def _capacity_needs_single(self) -> _Model:
+        if self.capacitated and self.allocation != "single":
+            raise ValueError("capacitated = true needs allocation = 'single'")
+        return self
+
+
+class _Solver(_Strict):
+    name: SolverName = "highs"
+    time_limit_s: float | None = Field(default=None, gt=0)
+    gap: float = Field(default=1e-6, ge=0, lt=1)
+    threads: int | None = Field(default=None, ge=1)
+    log: bool = False
+
+
+class _File(_Strict):
+    scenario: _Scenario
+    inputs: _Inputs
+    distances: _Distances = _Distances()
+    model: _Model = _Model()
+    solver: _Solver = _Solver()
+
+
+# --------------------------------------------------------------------------
+# Loading
+# --------------------------------------------------------------------------
+
+
+def deep_merge(base: Mapping[str, Any], override: Mapping[str, Any]) -> dict[str, Any]:
+    """Return ``base`` with ``override`` merged in, recursively for tables."""
+    out = copy.deepcopy(dict(base))
+    for key, value in override.items():
+        if isinstance(value, Mapping) and isinstance(out.get(key), Mapping):
+            out[key] = deep_merge(out[key], value)
+        else:
+            out[key] = copy.deepcopy(value)
+    return out
+
+
+def _known_keys(model: type[BaseModel]) -> list[str]:
+    return list(model.model_fields)
+
+
+def _schema_at(path: tuple[Any, ...]) -> type[BaseModel] | None:
+    model: type[BaseModel] = _File
+    for part in path:
+        field_info = model.model_fields.get(str(part))
+        if field_info is None:
+            return None
+        ann = field_info.annotation
+        if isinstance(ann, type) and issubclass(ann, BaseModel):
+            model = ann
+        else:
+            return None
+    return model
+
+
+def _line_of(text: str, loc: tuple[Any, ...]) -> int | None:
+    """Best-effort line number of a key in TOML text (1-based), else None."""
+    if not loc:
+        return None
+    lines = text.splitlines()
+    section = ".".join(str(p) for p in loc[:-1])
+    key = str(loc[-1])
+    in_section = section == ""
+    header = re.compile(r"^\s*\[([^\]]+)\]\s*$")
+    for number, line in enumerate(lines, start=1):
+        m = header.match(line)
+        if m:
+            in_section = m.group(1).strip() == section
+            if in_section and section and key == loc[-1] and len(loc) == 1:
+                return number
+            continue
+        if in_section and re.match(rf"^\s*{re.escape(key)}\s*=", line):
+            return number
+    if len(loc) == 1:  # a whole table
+        for number, line in enumerate(lines, start=1):
+            m = header.match(line)
+            if m and m.group(1).strip() == key:
+                return number
+    return None
+
+
+def _problems_from(err: ValidationError, file: str, text: str) -> list[Problem]:
+    problems = []
+    for e in err.errors():
+        loc = tuple(p for p in e["loc"] if not isinstance(p, int))
+        key = ".".join(str(p) for p in loc) or None
+        kind = e["type"]
+        if kind == "extra_forbidden":
+            parent = _schema_at(loc[:-1])
+            hint = ""
+            if parent is not None:
+                close = difflib.get_close_matches(str(loc[-1]), _known_keys(parent), n=1)
+                if close:
+                    hint = f"; did you mean {close[0]!r}?"
+                else:
+                    hint = f"; known keys: {', '.join(_known_keys(parent))}"
+            message = f"unknown key {str(loc[-1])!r}{hint}"
+        elif kind == "missing":
+            message = "required key is missing"
+        else:
+            message = f"{e['msg']}, got {e.get('input')!r}"
+            message = message.replace("Value error, ", "")
+        problems.append(Problem(file, _line_of(text, loc), key, message))
+    return problems
+
+
+def parse_config(
+    raw: Mapping[str, Any],
+    *,
+    base_dir: Path,
+    file: str = "config",
+    text: str = "",
+    source: Path | None = None,
+) -> ScenarioConfig:
+    """Validate a config mapping and freeze it.
+
+    Parameters
+    ----------
+    raw
+        The parsed TOML (with any overrides already merged).
+    base_dir
+        Folder that relative input paths are resolved against.
+    file, text
+        Name and text of the config file, for error messages.
+    source
+        The config file path, kept on the result.
+
+    Raises
+    ------
+    InputError
+        With one :class:`~hubnet.errors.Problem` per invalid key or value.
+    """
+    try:
+        spec = _File.model_validate(dict(raw))
+    except ValidationError as err:
+        raise InputError(_problems_from(err, file, text)) from None
+
+    def resolve(p: str | None) -> Path | None:
+        if p is None:
+            return None
+        path = Path(p).expanduser()
+        return path if path.is_absolute() else (base_dir / path)
+
+    sites = resolve(spec.inputs.sites)
+    demand = resolve(spec.inputs.demand)
+    assert sites is not None and demand is not None
+    return ScenarioConfig(
+        name=spec.scenario.name,
+        description=spec.scenario.description,
+        source=source,
+        inputs=InputFiles(
+            sites=sites,
+            demand=demand,
+            distances=resolve(spec.inputs.distances),
+            volume_unit=spec.inputs.volume_unit,
+            allow_same_site_demand=spec.inputs.allow_same_site_demand,
+            sheet=spec.inputs.sheet,
+        ),
+        distances=DistanceParams(**spec.distances.model_dump()),
+        model=HubModelParams(**spec.model.model_dump()),
+        solver=SolverParams(**spec.solver.model_dump()),
+    )
+
+
+def load_config(path: str | Path, overrides: Mapping[str, Any] | None = None) -> ScenarioConfig:
+    """Read a scenario config from a TOML file.
+
+    Parameters
+    ----------
+    path
+        The TOML file. Relative input paths are resolved against its folder.
+    overrides
+        Nested mapping merged on top of the file before validation, for
+        example ``{"model": {"hubs": 4}}``.
+
+    Raises
+    ------
+    InputError
+        When the file is missing, is not valid TOML, or fails validation.
+    """
+    path = Path(path)
+    name = str(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise InputError(Problem(name, None, None, "config file not found")) from None
+    except (OSError, UnicodeDecodeError) as err:
+        raise InputError(Problem(name, None, None, f"cannot read config file: {err}")) from None
+    try:
+        raw = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as err:
+        m = re.search(r"line (\d+)", str(err))
+        line = int(m.group(1)) if m else None
+        raise InputError(Problem(name, line, None, f"not valid TOML: {err}")) from None
+    if overrides:
+        raw = deep_merge(raw, overrides)
+    return parse_config(raw, base_dir=path.parent, file=name, text=text, source=path)
