@@ -76,6 +76,10 @@ class Route:
     cost
         Transport plus handling cost of the pair's whole volume, currency
         per day.
+    hubs
+        The hubs where the volume is sorted, in order (one or two ids; a
+        hub at the origin or destination is listed when the volume is
+        sorted there). Empty for a direct route.
     """
 
     origin: str
@@ -84,6 +88,7 @@ class Route:
     path: tuple[str, ...]
     distance_km: float
     cost: float
+    hubs: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True, slots=True)
@@ -332,6 +337,7 @@ def evaluate_plan(
                 path=tuple(path),
                 distance_km=float(d[i, k] + d[k, m] + d[m, j]),
                 cost=float(coll + tran + dis + hand),
+                hubs=(ids[k],) if m == k else (ids[k], ids[m]),
             )
         )
         for tier, a, b in (("collection", i, k), ("transfer", k, m), ("distribution", m, j)):

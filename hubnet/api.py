@@ -1,0 +1,100 @@
+"""Library entry points: load a scenario, solve it, write its run folder.
+
+The CLI calls only these, so a notebook gets exactly what the command does.
+
+Data flows one way: config -> :func:`hubnet.inputs.load_network` ->
+:func:`hubnet.distances.distance_matrix` -> :func:`hubnet.solve.solve_network`
+-> :func:`hubnet.runfolder.write_run`.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+from hubnet.config import ScenarioConfig, load_config
+from hubnet.data import DistanceMatrix, NetworkData
+from hubnet.distances import distance_matrix
+from hubnet.inputs import load_network
+from hubnet.solution import Solution
+from hubnet.solve import Progress, _quiet, solve_network
+
+
+@dataclass(frozen=True, eq=False)
+class LoadedScenario:
+    """A validated scenario ready to solve.
+
+    Attributes
+    ----------
+    config
+        The frozen config.
+    data
+        Validated sites and demand.
+    distances
+        Distances (km) and optional hours used by the model.
+    """
+
+    config: ScenarioConfig
+    data: NetworkData
+    distances: DistanceMatrix
+
+
+def load_scenario(
+    config: str | Path | ScenarioConfig, overrides: Mapping[str, Any] | None = None
+) -> LoadedScenario:
+    """Read and validate a scenario (config, inputs and distances), solving nothing.
+
+    Raises
+    ------
+    InputError
+        With every problem found in the config and the input files.
+    """
+    cfg = config if isinstance(config, ScenarioConfig) else load_config(config, overrides)
+    data = load_network(cfg)
+    return LoadedScenario(cfg, data, distance_matrix(data, cfg.distances))
+
+
+def solve_scenario(scenario: LoadedScenario, progress: Progress = _quiet) -> Solution:
+    """Solve a loaded scenario and return the priced plan."""
+    cfg = scenario.config
+    return solve_network(
+        scenario.data,
+        scenario.distances.km,
+        cfg.model,
+        cfg.solver,
+        scenario=cfg.name,
+        progress=progress,
+    )
+
+
+def run_scenario(
+    config: str | Path | ScenarioConfig,
+    out_dir: str | Path,
+    *,
+    force: bool = False,
+    overrides: Mapping[str, Any] | None = None,
+    progress: Progress = _quiet,
+) -> tuple[Solution, Path]:
+    """Load, solve and write a run folder atomically.
+
+    The output folder is checked before any solving, so an existing folder
+    is reported at once; it is never overwritten without ``force``.
+
+    Returns
+    -------
+    tuple
+        The solution and the run folder written.
+    """
+    from hubnet.report.summary import summary_dict
+    from hubnet.runfolder import preflight, write_run
+
+    out = Path(out_dir)
+    preflight(out, force)
+    scenario = load_scenario(config, overrides)
+    sol = solve_scenario(scenario, progress)
+    cfg = scenario.config
+    text = cfg.source.read_text(encoding="utf-8") if cfg.source is not None else None
+    path = write_run(out, sol, force=force, config_text=text, summary=summary_dict(sol, cfg))
+    return sol, path

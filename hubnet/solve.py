@@ -1,0 +1,235 @@
+"""Solve a built model with HiGHS or CBC and report honestly what was proven.
+
+``solve_network`` is the library entry point: distances and data in, a
+priced :class:`~hubnet.solution.Solution` out. It builds the MILP, finds a
+starting plan by local search, hands it to the solver as a MIP start, and
+reads back the status, the objective, the best bound and the gap. A plan
+stopped by the time limit is reported as ``time_limit``, never as optimal.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import os
+import re
+import tempfile
+import time
+from collections.abc import Callable
+from pathlib import Path
+
+import numpy as np
+import pulp
+
+from hubnet.config import HubModelParams, SolverParams
+from hubnet.data import NetworkData
+from hubnet.errors import InfeasibleError, NoSolutionError, SolverError
+from hubnet.heuristics import starting_plan
+from hubnet.model import HubModel, build_model
+from hubnet.solution import RunStatus, Solution, SolveStats, evaluate_plan
+
+Progress = Callable[[str], None]
+
+
+def _quiet(_: str) -> None:
+    return None
+
+
+class _HighsWithStart(pulp.HiGHS):
+    """PuLP's HiGHS interface, plus a MIP start from the variables' initial values."""
+
+    def callSolver(self, lp: pulp.LpProblem) -> None:  # noqa: N802 (PuLP's name)
+        start = [
+            (v.index, float(v.varValue))
+            for v in lp.variables()
+            if v.varValue is not None and v.cat == pulp.LpInteger
+        ]
+        if start:
+            idx, val = zip(*start, strict=True)
+            lp.solverModel.setSolution(len(idx), np.array(idx), np.array(val))
+        lp.solverModel.run()
+
+
+def _highs(opts: SolverParams) -> pulp.LpSolver:
+    return _HighsWithStart(
+        msg=opts.log,
+        timeLimit=opts.time_limit_s,
+        gapRel=opts.gap,
+        threads=opts.threads,
+        mip_abs_gap=0.0,
+    )
+
+
+def _cbc(opts: SolverParams, log_path: str) -> pulp.LpSolver:
+    return pulp.PULP_CBC_CMD(
+        msg=opts.log,
+        timeLimit=opts.time_limit_s,
+        gapRel=opts.gap,
+        gapAbs=0.0,
+        threads=opts.threads,
+        warmStart=True,
+        logPath=log_path,
+    )
+
+
+def _cbc_bound(log_text: str) -> float | None:
+    for pattern in (r"Lower bound:\s+(-?[\d.eE+-]+)", r"best possible\s+(-?[\d.eE+-]+)"):
+        found = re.findall(pattern, log_text)
+        if found:
+            try:
+                return float(found[-1])
+            except ValueError:
+                continue
+    return None
+
+
+def run_solver(model: HubModel, opts: SolverParams) -> SolveStats:
+    """Run the chosen solver on a built model.
+
+    Returns
+    -------
+    SolveStats
+        With status ``optimal``, ``time_limit``, ``infeasible`` or ``error``,
+        the objective (currency per day), best bound and relative gap.
+    """
+    prob = model.problem
+    options = {
+        "time_limit_s": opts.time_limit_s,
+        "gap": opts.gap,
+        "threads": opts.threads,
+    }
+    start = time.perf_counter()
+    bound: float | None
+    if opts.name == "highs":
+        if not pulp.HiGHS().available():
+            raise SolverError("HiGHS is not available: pip install highspy")
+        prob.solve(_highs(opts))
+        seconds = time.perf_counter() - start
+        info = prob.solverModel.getInfo()
+        model_status = prob.solverModel.getModelStatus()
+        import highspy
+
+        has_plan = prob.sol_status in (pulp.LpSolutionOptimal, pulp.LpSolutionIntegerFeasible)
+        if model_status == highspy.HighsModelStatus.kInfeasible:
+            status: RunStatus = "infeasible"
+        elif model_status == highspy.HighsModelStatus.kOptimal:
+            status = "optimal"
+        elif has_plan:
+            status = "time_limit"
+        else:
+            status = "error"
+        objective = float(info.objective_function_value) if has_plan else None
+        bound = float(info.mip_dual_bound)
+        if not np.isfinite(bound):
+            bound = None
+    else:
+        fd, log_path = tempfile.mkstemp(suffix=".log", prefix="hubnet-cbc-")
+        os.close(fd)
+        try:
+            prob.solve(_cbc(opts, log_path))
+            log_text = Path(log_path).read_text(errors="replace")
+        finally:
+            Path(log_path).unlink(missing_ok=True)
+        seconds = time.perf_counter() - start
+        has_plan = prob.sol_status in (pulp.LpSolutionOptimal, pulp.LpSolutionIntegerFeasible)
+        if prob.status == pulp.LpStatusInfeasible:
+            status = "infeasible"
+        elif prob.sol_status == pulp.LpSolutionOptimal:
+            status = "optimal"
+        elif has_plan:
+            status = "time_limit"
+        else:
+            status = "error"
+        objective = float(pulp.value(prob.objective)) if has_plan else None
+        bound = objective if status == "optimal" else _cbc_bound(log_text)
+    gap = None
+    if objective is not None and bound is not None:
+        gap = max(0.0, (objective - bound) / max(abs(objective), 1e-9))
+        if status == "optimal":
+            gap = min(gap, opts.gap) if gap <= opts.gap * 1.0001 else gap
+    return SolveStats(
+        solver=opts.name,
+        status=status,
+        objective=objective,
+        best_bound=bound,
+        gap=gap,
+        solve_seconds=seconds,
+        build_seconds=0.0,
+        formulation=model.formulation,
+        options=options,
+    )
+
+
+def solve_network(
+    data: NetworkData,
+    d: np.ndarray,
+    params: HubModelParams,
+    opts: SolverParams,
+    *,
+    scenario: str = "",
+    progress: Progress = _quiet,
+) -> Solution:
+    """Choose hubs and routes: build, start, solve, re-price.
+
+    Parameters
+    ----------
+    data
+        Validated network.
+    d
+        ``(n, n)`` distances, km.
+    params
+        Model parameters.
+    opts
+        Solver choice and limits.
+    scenario
+        Scenario name for the outputs.
+    progress
+        Called with one-line messages as the work goes on.
+
+    Returns
+    -------
+    Solution
+        The plan with every figure re-priced from the hubs and allocation.
+
+    Raises
+    ------
+    InfeasibleError
+        No plan satisfies the constraints (e.g. sort capacity below demand).
+    NoSolutionError
+        The time limit ran out before any plan was found.
+    """
+    t0 = time.perf_counter()
+    progress(f"building the {params.allocation}-allocation model for {data.n} sites")
+    model = build_model(data, d, params)
+    build_seconds = time.perf_counter() - t0
+    progress(
+        f"model built in {build_seconds:.1f} s: {len(model.problem.variables())} variables, "
+        f"{len(model.problem.constraints)} constraints"
+    )
+    start = starting_plan(data, d, params)
+    if start is not None:
+        hubs, assign, cost = start
+        model.set_start(hubs, assign)
+        progress(f"starting plan from local search: {len(hubs)} hubs, cost {cost:,.2f}")
+    progress(
+        f"solving with {opts.name}"
+        + (f" (limit {opts.time_limit_s:g} s)" if opts.time_limit_s else "")
+    )
+    stats = run_solver(model, opts)
+    stats = dataclasses.replace(stats, build_seconds=build_seconds)
+    if stats.status == "infeasible":
+        raise InfeasibleError(
+            "no plan satisfies the constraints: check sort capacities against volumes, "
+            "forced-open and closed hubs, and the number of hubs asked"
+        )
+    if stats.objective is None:
+        if opts.time_limit_s is not None:
+            raise NoSolutionError(f"no plan found within the time limit of {opts.time_limit_s:g} s")
+        raise SolverError(f"{opts.name} returned no plan")
+    progress(
+        f"{stats.status}: cost {stats.objective:,.2f}, bound "
+        f"{stats.best_bound if stats.best_bound is not None else float('nan'):,.2f}, "
+        f"gap {100 * (stats.gap or 0):.4f} % in {stats.solve_seconds:.1f} s"
+    )
+    return evaluate_plan(
+        data, d, params, model.open_hubs(), model.allocation(), stats, scenario=scenario
+    )
