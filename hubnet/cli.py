@@ -1,0 +1,145 @@
+"""The ``hubnet`` command: a thin layer over :mod:`hubnet.api`.
+
+Each command reads, calls the library, prints one line per step and exits
+with a documented code (see :mod:`hubnet.errors`). A :class:`HubnetError`
+prints as a short message; the traceback appears only with ``--verbose``.
+"""
+
+from __future__ import annotations
+
+import sys
+import time
+from collections.abc import Callable
+from pathlib import Path
+from typing import Annotated
+
+import typer
+from rich.console import Console
+
+from hubnet.errors import EXIT_BAD_INPUT, EXIT_ERROR, EXIT_OK, HubnetError
+
+app = typer.Typer(
+    add_completion=False,
+    no_args_is_help=True,
+    help="Design hub-and-spoke freight networks: pick hubs, route every flow, write the plan.",
+)
+_err = Console(stderr=True, highlight=False)
+
+
+def _progress(quiet: bool) -> Callable[[str], None]:
+    start = time.perf_counter()
+
+    def say(message: str) -> None:
+        if not quiet:
+            _err.print(f"[dim]{time.perf_counter() - start:7.1f} s[/dim]  {message}")
+
+    return say
+
+
+def _fail(err: BaseException, verbose: bool) -> None:
+    if verbose:
+        _err.print_exception()
+    code = err.exit_code if isinstance(err, HubnetError) else EXIT_ERROR
+    _err.print(f"[bold red]error:[/bold red] {err}", markup=True, highlight=False)
+    raise typer.Exit(code)
+
+
+@app.command()
+def solve(
+    config: Annotated[Path, typer.Argument(help="Scenario config (TOML).")],
+    out: Annotated[Path, typer.Option("--out", "-o", help="Run folder to write.")] = Path(
+        "runs/latest"
+    ),
+    force: Annotated[
+        bool, typer.Option("--force", help="Replace the run folder if it exists.")
+    ] = False,
+    hubs: Annotated[
+        int | None, typer.Option("--hubs", help="Override model.hubs (number of hubs).")
+    ] = None,
+    solver: Annotated[
+        str | None, typer.Option("--solver", help="Override solver.name: highs or cbc.")
+    ] = None,
+    time_limit: Annotated[
+        float | None, typer.Option("--time-limit", help="Override solver.time_limit_s (s).")
+    ] = None,
+    gap: Annotated[
+        float | None, typer.Option("--gap", help="Override solver.gap (relative).")
+    ] = None,
+    threads: Annotated[
+        int | None, typer.Option("--threads", help="Override solver.threads.")
+    ] = None,
+    quiet: Annotated[bool, typer.Option("--quiet", "-q", help="Print only errors.")] = False,
+    verbose: Annotated[
+        bool, typer.Option("--verbose", "-v", help="Show tracebacks and the solver log.")
+    ] = False,
+) -> None:
+    """Solve a scenario and write its run folder (summary.json and tables)."""
+    from hubnet.api import run_scenario
+
+    overrides: dict[str, dict[str, object]] = {}
+    if hubs is not None:
+        overrides.setdefault("model", {})["hubs"] = hubs
+    for key, value in (
+        ("name", solver),
+        ("time_limit_s", time_limit),
+        ("gap", gap),
+        ("threads", threads),
+    ):
+        if value is not None:
+            overrides.setdefault("solver", {})[key] = value
+    if verbose:
+        overrides.setdefault("solver", {})["log"] = True
+    say = _progress(quiet)
+    try:
+        sol, path = run_scenario(config, out, force=force, overrides=overrides, progress=say)
+    except HubnetError as err:
+        _fail(err, verbose)
+        return
+    except KeyboardInterrupt:
+        _err.print("interrupted: nothing was written")
+        raise typer.Exit(130) from None
+    stats = sol.stats
+    if not quiet:
+        _err.print(
+            f"[bold]{stats.status}[/bold]: {len(sol.hubs)} hubs ({', '.join(sol.hub_ids)}), "
+            f"cost {sol.costs['total']:,.2f} per day, gap {100 * (stats.gap or 0):.4f} %"
+        )
+        _err.print(f"wrote {path}")
+    raise typer.Exit(EXIT_OK)
+
+
+@app.command()
+def check(
+    config: Annotated[Path, typer.Argument(help="Scenario config (TOML).")],
+    verbose: Annotated[bool, typer.Option("--verbose", "-v")] = False,
+) -> None:
+    """Validate a scenario's config and input files without solving."""
+    from hubnet.api import load_scenario
+
+    try:
+        sc = load_scenario(config)
+    except HubnetError as err:
+        _fail(err, verbose)
+        return
+    data = sc.data
+    cand = int(data.candidates().sum())
+    total = sum(d.volume for d in data.demand)
+    _err.print(
+        f"ok: {data.n} sites ({cand} candidate hubs), {len(data.demand)} OD pairs, "
+        f"{total:,.1f} {data.volume_unit} per day; distances: {sc.distances.source}"
+    )
+
+
+def main() -> None:
+    """Console-script entry point."""
+    try:
+        app()
+    except SystemExit as exc:  # typer raises SystemExit on --help and bad options
+        code = exc.code if isinstance(exc.code, int) else (0 if exc.code is None else 1)
+        if code == 2 and not isinstance(exc.code, int):
+            code = EXIT_BAD_INPUT
+        sys.exit(code)
+
+
+if __name__ == "__main__":
+    main()
