@@ -23,7 +23,9 @@ app = typer.Typer(
     no_args_is_help=True,
     help="Design hub-and-spoke freight networks: pick hubs, route every flow, write the plan.",
 )
-_err = Console(stderr=True, highlight=False)
+# soft_wrap: never break a line at the terminal width, so every problem stays on
+# one line (file, row, column, message) for grep and for a scheduler's log.
+_err = Console(stderr=True, highlight=False, soft_wrap=True)
 
 
 def _progress(quiet: bool) -> Callable[[str], None]:

@@ -38,13 +38,20 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
+from pydantic import (
+    BaseModel,
+    ConfigDict,
+    Field,
+    ValidationError,
+    field_validator,
+    model_validator,
+)
 
 from hubnet.errors import InputError, Problem
 from hubnet.units import DEFAULT_CIRCUITY, VOLUME_UNITS
 
 Allocation = Literal["single", "multiple"]
-SolverName = Literal["highs", "cbc"]
+SolverName = Literal["auto", "highs", "cbc"]
 DistanceMethod = Literal["auto", "geodesic", "euclidean", "matrix"]
 
 
@@ -142,7 +149,10 @@ class SolverParams:
     Attributes
     ----------
     name
-        ``highs`` (highspy) or ``cbc`` (bundled with PuLP).
+        ``highs`` (highspy), ``cbc`` (bundled with PuLP), or ``auto``: CBC
+        for single allocation and HiGHS for multiple allocation, the
+        faster of the two on each formulation in our benchmarks
+        (benchmarks/README.md).
     time_limit_s
         Wall-clock limit in seconds, or ``None`` for none.
     gap
@@ -153,7 +163,7 @@ class SolverParams:
         Show the solver's own log on the terminal.
     """
 
-    name: SolverName = "highs"
+    name: SolverName = "auto"
     time_limit_s: float | None = None
     gap: float = 1e-6
     threads: int | None = None
@@ -203,13 +213,12 @@ class _Inputs(_Strict):
     allow_same_site_demand: bool = False
     sheet: str | None = None
 
-    @model_validator(mode="after")
-    def _unit(self) -> _Inputs:
-        if self.volume_unit not in VOLUME_UNITS:
-            raise ValueError(
-                f"volume_unit must be one of {', '.join(VOLUME_UNITS)}, got {self.volume_unit!r}"
-            )
-        return self
+    @field_validator("volume_unit")
+    @classmethod
+    def _unit(cls, value: str) -> str:
+        if value not in VOLUME_UNITS:
+            raise ValueError(f"expected one of {', '.join(VOLUME_UNITS)}")
+        return value
 
 
 class _Distances(_Strict):
@@ -234,7 +243,7 @@ class _Model(_Strict):
 
 
 class _Solver(_Strict):
-    name: SolverName = "highs"
+    name: SolverName = "auto"
     time_limit_s: float | None = Field(default=None, gt=0)
     gap: float = Field(default=1e-6, ge=0, lt=1)
     threads: int | None = Field(default=None, ge=1)
@@ -309,6 +318,24 @@ def _line_of(text: str, loc: tuple[Any, ...]) -> int | None:
     return None
 
 
+def key_line(path: str | Path, *keys: str) -> int | None:
+    r"""Line (1-based) of a key in a TOML config file, for messages; None when not found.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> f = pathlib.Path(tempfile.mkdtemp()) / "c.toml"
+    >>> _ = f.write_text('[scenario]\nname = "x"\n[inputs]\nsites = "s.csv"\n')
+    >>> key_line(f, "inputs", "sites")
+    4
+    """
+    try:
+        text = Path(path).read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError):
+        return None
+    return _line_of(text, keys)
+
+
 def _problems_from(err: ValidationError, file: str, text: str) -> list[Problem]:
     problems = []
     for e in err.errors():
@@ -328,8 +355,9 @@ def _problems_from(err: ValidationError, file: str, text: str) -> list[Problem]:
         elif kind == "missing":
             message = "required key is missing"
         else:
-            message = f"{e['msg']}, got {e.get('input')!r}"
-            message = message.replace("Value error, ", "")
+            message = e["msg"].replace("Value error, ", "")
+            if not isinstance(e.get("input"), Mapping):  # a whole table: not worth echoing
+                message += f", got {e.get('input')!r}"
         problems.append(Problem(file, _line_of(text, loc), key, message))
     return problems
 

@@ -166,7 +166,8 @@ def starting_plan(
                 moves.append([k for k in hubs if k != out] + [inn])
         if target is None:
             moves += [hubs + [k] for k in cand if k not in hubs]
-            moves += [[k for k in hubs if k != out] for out in hubs if out not in forced]
+            if len(hubs) > 1:
+                moves += [[k for k in hubs if k != out] for out in hubs if out not in forced]
         if single and len(moves) > 40:
             # Rank swaps with the cheap proxy; price only the most promising exactly.
             ranked = sorted(moves, key=proxy)[:40]

@@ -71,6 +71,7 @@ would otherwise be silently lost.
 from __future__ import annotations
 
 import difflib
+import os
 import re
 import sys
 import warnings
@@ -85,7 +86,7 @@ import pandas as pd
 import pandera.pandas as pa
 from pandera.errors import SchemaErrors
 
-from hubnet.config import DistanceMethod, ScenarioConfig
+from hubnet.config import DistanceMethod, ScenarioConfig, key_line
 from hubnet.data import CoordinateSystem, Demand, DistanceMatrix, HubStatus, NetworkData, Site
 from hubnet.errors import InputError, Problem
 from hubnet.units import VOLUME_UNITS
@@ -1333,6 +1334,15 @@ def load_network(cfg: ScenarioConfig) -> NetworkData:
 
     def table(path: Path | None, name: str) -> _Table | None:
         if path is None:
+            return None
+        if cfg.source is not None and not os.path.lexists(path):
+            # Name the config line that gives the path: that is what to fix.
+            problems.add(
+                str(cfg.source),
+                key_line(cfg.source, "inputs", name),
+                f"inputs.{name}",
+                f"file not found: {path}",
+            )
             return None
         found = _read(path, files.sheet, name, problems)
         return None if found is None else _table(*found)

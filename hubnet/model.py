@@ -120,6 +120,17 @@ def _check_feasible(data: NetworkData, params: HubModelParams, cand: list[int]) 
         raise InputError(problems)
 
 
+def _var(
+    prob: pulp.LpProblem,
+    name: str,
+    low: float | None = None,
+    up: float | None = None,
+    cat: str = pulp.LpContinuous,
+) -> pulp.LpVariable:
+    """A variable attached to ``prob`` (PuLP 3.3+ API)."""
+    return prob.add_variable(name, low, up, cat=cat)
+
+
 def _expr(pairs: list[tuple[pulp.LpVariable, float]]) -> pulp.LpAffineExpression:
     return pulp.LpAffineExpression(pairs)
 
@@ -167,7 +178,7 @@ def _single_allocation(
     x: dict[tuple[int, int], pulp.LpVariable] = {}
     for i in range(n):
         for k in cand:
-            x[i, k] = pulp.LpVariable(f"x_{i}_{k}", cat=pulp.LpBinary)
+            x[i, k] = _var(prob, f"x_{i}_{k}", cat=pulp.LpBinary)
     hub: list[pulp.LpVariable | None] = [x[k, k] if k in cset else None for k in range(n)]
     # Inter-hub flow of volume originating at i, from hub k to hub l (k != l).
     senders = [i for i in range(n) if out_vol[i] > _ZERO]
@@ -176,7 +187,7 @@ def _single_allocation(
         for k in cand:
             for m in cand:
                 if k != m:
-                    y[i, k, m] = pulp.LpVariable(f"y_{i}_{k}_{m}", lowBound=0)
+                    y[i, k, m] = _var(prob, f"y_{i}_{k}_{m}", 0)
 
     obj: list[tuple[pulp.LpVariable, float]] = []
     for (i, k), v in x.items():
@@ -228,19 +239,19 @@ def _multiple_allocation(
     handling = np.array([s.handling_cost for s in data.sites])
     c, t, dist = unit_path_costs(d, params)
     prob = pulp.LpProblem("multiple_allocation", pulp.LpMinimize)
-    hv = {k: pulp.LpVariable(f"h_{k}", cat=pulp.LpBinary) for k in cand}
+    hv = {k: _var(prob, f"h_{k}", cat=pulp.LpBinary) for k in cand}
     hub: list[pulp.LpVariable | None] = [hv.get(k) for k in range(n)]
     senders = [i for i in range(n) if out_vol[i] > _ZERO]
-    z = {(i, k): pulp.LpVariable(f"z_{i}_{k}", 0, 1) for i in senders for k in cand}
+    z = {(i, k): _var(prob, f"z_{i}_{k}", 0, 1) for i in senders for k in cand}
     y = {
-        (i, k, m): pulp.LpVariable(f"y_{i}_{k}_{m}", lowBound=0)
+        (i, k, m): _var(prob, f"y_{i}_{k}_{m}", 0)
         for i in senders
         for k in cand
         for m in cand
         if k != m
     }
     xd = {
-        (i, m, j): pulp.LpVariable(f"x_{i}_{m}_{j}", lowBound=0)
+        (i, m, j): _var(prob, f"x_{i}_{m}_{j}", 0)
         for i in senders
         for j in range(n)
         if w[i, j] > 0
