@@ -1,0 +1,165 @@
+"""The exact models against exhaustive enumeration and against each other.
+
+References outside hubnet's model code: tests/bruteforce.py enumerates
+every hub set (and allocation) from the problem definition; the CAB data
+(O'Kelly 1987, EJOR 32:393-404; 25 US cities, see
+../shared/reference/hub_benchmarks/SOURCES.md) has no published optimum
+table in our reference folder, so it is checked by enumeration on n = 10
+for every p and transfer factor, and by a second solver.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from benchdata import ap_network, ap_params, cab_network, euclid
+from bruteforce import brute_force
+
+from hubnet.config import HubModelParams, SolverParams
+from hubnet.data import Demand, NetworkData, Site
+from hubnet.solve import solve_network
+
+ALPHAS = (0.2, 0.4, 0.6, 0.8, 1.0)
+
+
+def _cab_params(allocation: str, p: int, alpha: float) -> HubModelParams:
+    # CAB convention: collection = distribution = 1, transfer alpha
+    # (SOURCES.md section 1, from the *.3.4 files).
+    return HubModelParams(
+        allocation="single" if allocation == "single" else "multiple",
+        hubs=p,
+        collection_factor=1.0,
+        transfer_factor=alpha,
+        distribution_factor=1.0,
+        cost_per_unit_km=1.0,
+    )
+
+
+@pytest.mark.parametrize("allocation", ["single", "multiple"])
+@pytest.mark.parametrize("p", [1, 2, 3, 4])
+def test_cab10_matches_enumeration(allocation: str, p: int) -> None:
+    data = cab_network(10)
+    d = euclid(data)
+    w = data.flow_matrix()
+    for alpha in ALPHAS:
+        want, hubs = brute_force(d, w, allocation=allocation, p=p, alpha=alpha)
+        sol = solve_network(data, d, _cab_params(allocation, p, alpha), SolverParams())
+        assert sol.stats.status == "optimal"
+        assert sol.costs["total"] == pytest.approx(want, rel=1e-7), (alpha, hubs, sol.hub_ids)
+        assert sol.stats.objective == pytest.approx(want, rel=1e-6)
+
+
+@pytest.mark.parametrize(
+    ("allocation", "n", "p", "alpha"),
+    [
+        ("single", 15, 3, 0.4),
+        ("multiple", 15, 3, 0.4),
+        pytest.param("single", 20, 2, 0.8, marks=pytest.mark.slow),
+        ("multiple", 25, 4, 0.2),
+    ],
+)
+def test_cab_highs_and_cbc_agree(allocation: str, n: int, p: int, alpha: float) -> None:
+    data = cab_network(n)
+    d = euclid(data)
+    params = _cab_params(allocation, p, alpha)
+    a = solve_network(data, d, params, SolverParams(name="highs"))
+    b = solve_network(data, d, params, SolverParams(name="cbc"))
+    assert a.stats.status == b.stats.status == "optimal"
+    assert a.costs["total"] == pytest.approx(b.costs["total"], rel=1e-7)
+
+
+@pytest.mark.parametrize("allocation", [pytest.param("single", marks=pytest.mark.slow), "multiple"])
+def test_ap20_highs_and_cbc_agree(allocation: str) -> None:
+    data = ap_network(20)
+    d = euclid(data)
+    params = ap_params(allocation, 3)
+    a = solve_network(data, d, params, SolverParams(name="highs"))
+    b = solve_network(data, d, params, SolverParams(name="cbc"))
+    assert a.stats.status == b.stats.status == "optimal"
+    assert a.costs["total"] == pytest.approx(b.costs["total"], rel=1e-7)
+    assert sorted(a.hub_ids) == sorted(b.hub_ids)
+
+
+def _random_network(seed: int, n: int = 6) -> tuple[NetworkData, np.ndarray, dict[str, object]]:
+    """A small planar network with fixed costs, handling costs and capacities."""
+    rng = np.random.default_rng(seed)
+    xy = rng.uniform(0, 100, size=(n, 2))
+    w = rng.integers(0, 20, size=(n, n)).astype(float)
+    np.fill_diagonal(w, 0.0)
+    fixed = rng.uniform(200, 900, size=n).round(1)
+    handling = rng.uniform(0, 2, size=n).round(2)
+    out_vol = w.sum(axis=1)
+    capacity = (out_vol.sum() * rng.uniform(0.35, 0.8, size=n)).round()
+    status = ["candidate"] * n
+    status[int(rng.integers(n))] = "closed"
+    sites = tuple(
+        Site(
+            id=f"S{i}",
+            name=f"site {i}",
+            x=float(xy[i, 0]),
+            y=float(xy[i, 1]),
+            hub_fixed_cost=float(fixed[i]),
+            handling_cost=float(handling[i]),
+            sort_capacity=float(capacity[i]),
+            hub_status=status[i],  # type: ignore[arg-type]
+        )
+        for i in range(n)
+    )
+    demand = tuple(
+        Demand(f"S{i}", f"S{j}", float(w[i, j])) for i in range(n) for j in range(n) if w[i, j] > 0
+    )
+    data = NetworkData(sites, demand, coordinates="planar")
+    cand = [i for i in range(n) if status[i] != "closed"]
+    extra = {"fixed": fixed, "handling": handling, "capacity": capacity, "candidates": cand}
+    return data, xy, extra
+
+
+@pytest.mark.parametrize("seed", range(6))
+@pytest.mark.parametrize(
+    ("allocation", "p", "capacitated"),
+    [
+        ("single", None, False),
+        ("single", None, True),
+        ("multiple", None, False),
+        ("single", 2, False),
+        ("multiple", 3, False),
+    ],
+)
+def test_tiny_random_against_enumeration(
+    seed: int, allocation: str, p: int | None, capacitated: bool
+) -> None:
+    data, xy, extra = _random_network(seed)
+    d = np.sqrt(((xy[:, None] - xy[None]) ** 2).sum(-1))
+    params = HubModelParams(
+        allocation=allocation,  # type: ignore[arg-type]
+        hubs=p,
+        capacitated=capacitated,
+        collection_factor=1.0,
+        transfer_factor=0.6,
+        distribution_factor=1.2,
+        cost_per_unit_km=0.5,
+    )
+    want, hubs = brute_force(
+        d,
+        data.flow_matrix(),
+        allocation=allocation,
+        p=p,
+        rate=0.5,
+        chi=1.0,
+        alpha=0.6,
+        delta=1.2,
+        fixed=extra["fixed"],  # type: ignore[arg-type]
+        handling=extra["handling"],  # type: ignore[arg-type]
+        capacity=extra["capacity"] if capacitated else None,  # type: ignore[arg-type]
+        candidates=extra["candidates"],  # type: ignore[arg-type]
+    )
+    if not np.isfinite(want):
+        pytest.skip("no capacity-feasible plan for this seed")
+    for solver in ("highs", "cbc"):
+        sol = solve_network(data, d, params, SolverParams(name=solver))  # type: ignore[arg-type]
+        assert sol.stats.status == "optimal"
+        assert sol.costs["total"] == pytest.approx(want, rel=1e-7), (solver, hubs, sol.hub_ids)
+        assert sol.stats.objective == pytest.approx(sol.costs["total"], rel=1e-6)
+        if capacitated:
+            for h in sol.hubs:
+                assert h.capacity is None or h.inbound <= h.capacity + 1e-6
