@@ -96,5 +96,8 @@ def run_scenario(
     sol = solve_scenario(scenario, progress)
     cfg = scenario.config
     text = cfg.source.read_text(encoding="utf-8") if cfg.source is not None else None
-    path = write_run(out, sol, force=force, config_text=text, summary=summary_dict(sol, cfg))
+    extra = {"solver.log": sol.stats.log} if sol.stats.log else None
+    path = write_run(
+        out, sol, force=force, config_text=text, summary=summary_dict(sol, cfg), extra_files=extra
+    )
     return sol, path

@@ -45,6 +45,8 @@ class SolveStats:
         Name of the formulation / algorithm used.
     options
         Solver options as given (time limit, gap, threads).
+    log
+        The solver's own log (written to the run folder as solver.log).
     """
 
     solver: str
@@ -56,6 +58,7 @@ class SolveStats:
     build_seconds: float
     formulation: str
     options: Mapping[str, object] = field(default_factory=dict)
+    log: str = field(default="", repr=False)
 
 
 @dataclass(frozen=True, slots=True)

@@ -14,6 +14,7 @@ import os
 import re
 import sys
 import tempfile
+import threading
 import time
 from collections.abc import Callable
 from pathlib import Path
@@ -70,12 +71,32 @@ def pick_solver(name: SolverName, allocation: str) -> SolverName:
 
 
 class _HighsWithStart(pulp.HiGHS):
-    """PuLP's HiGHS interface, plus a MIP start from the variables' initial values."""
+    """PuLP's HiGHS interface, plus a MIP start, a log file and progress reports.
+
+    Parameters
+    ----------
+    log_path
+        File the HiGHS log is written to (kept for the run folder).
+    progress
+        Called about every ``every_s`` seconds with the incumbent, the bound
+        and the elapsed time while the branch-and-bound runs.
+    """
+
+    def __init__(
+        self, *, log_path: str, progress: Progress, every_s: float = 5.0, **kwargs: object
+    ) -> None:
+        super().__init__(**kwargs)
+        self.log_path = log_path
+        self.report = progress
+        self.every_s = every_s
 
     def createAndConfigureSolver(self, lp: pulp.LpProblem) -> None:  # noqa: N802 (PuLP's name)
-        if not self.msg:
-            _silence_highs_banner()
+        _silence_highs_banner()
         super().createAndConfigureSolver(lp)
+        model = lp.solverModel
+        model.setOptionValue("output_flag", True)
+        model.setOptionValue("log_to_console", bool(self.msg))
+        model.setOptionValue("log_file", self.log_path)
 
     def callSolver(self, lp: pulp.LpProblem) -> None:  # noqa: N802 (PuLP's name)
         start = [
@@ -86,11 +107,66 @@ class _HighsWithStart(pulp.HiGHS):
         if start:
             idx, val = zip(*start, strict=True)
             lp.solverModel.setSolution(len(idx), np.array(idx), np.array(val))
+        last = [time.perf_counter()]
+
+        def heartbeat(event: object) -> None:
+            now = time.perf_counter()
+            if now - last[0] < self.every_s:
+                return
+            last[0] = now
+            out = event.data_out  # type: ignore[attr-defined]
+            self.report(_progress_line(out.mip_primal_bound, out.mip_dual_bound, out.running_time))
+
+        lp.solverModel.cbMipInterrupt.subscribe(heartbeat)
         lp.solverModel.run()
 
 
-def _highs(opts: SolverParams) -> pulp.LpSolver:
+def _progress_line(incumbent: float, bound: float, seconds: float) -> str:
+    parts = [f"still solving, {seconds:.0f} s"]
+    if np.isfinite(incumbent):
+        parts.append(f"best plan {incumbent:,.2f}")
+    if np.isfinite(bound):
+        parts.append(f"bound {bound:,.2f}")
+    if np.isfinite(incumbent) and np.isfinite(bound) and incumbent:
+        parts.append(f"gap {100 * max(0.0, incumbent - bound) / abs(incumbent):.3f} %")
+    return ", ".join(parts)
+
+
+_CBC_PROGRESS = re.compile(
+    r"Cbc0010I After \d+ nodes, \d+ on tree, (\S+) best solution, best possible (\S+) "
+    r"\(([\d.]+) seconds\)"
+)
+
+
+class _LogWatcher(threading.Thread):
+    """Reads CBC's log while it runs and reports its latest progress line."""
+
+    def __init__(self, path: str, progress: Progress, every_s: float = 5.0) -> None:
+        super().__init__(daemon=True)
+        self.path = path
+        self.report = progress
+        self.every_s = every_s
+        self.done = threading.Event()
+
+    def run(self) -> None:
+        while not self.done.wait(self.every_s):
+            try:
+                text = Path(self.path).read_text(errors="replace")
+            except OSError:
+                continue
+            found = _CBC_PROGRESS.findall(text)
+            if found:
+                inc, bnd, secs = found[-1]
+                try:
+                    self.report(_progress_line(float(inc), float(bnd), float(secs)))
+                except ValueError:
+                    continue
+
+
+def _highs(opts: SolverParams, log_path: str, progress: Progress) -> pulp.LpSolver:
     return _HighsWithStart(
+        log_path=log_path,
+        progress=progress,
         msg=opts.log,
         timeLimit=opts.time_limit_s,
         gapRel=opts.gap,
@@ -122,7 +198,7 @@ def _cbc_bound(log_text: str) -> float | None:
     return None
 
 
-def run_solver(model: HubModel, opts: SolverParams) -> SolveStats:
+def run_solver(model: HubModel, opts: SolverParams, progress: Progress = _quiet) -> SolveStats:
     """Run the chosen solver on a built model.
 
     Returns
@@ -141,12 +217,18 @@ def run_solver(model: HubModel, opts: SolverParams) -> SolveStats:
         opts = dataclasses.replace(
             opts, name=pick_solver("auto", "single" if model.assign else "multiple")
         )
+    fd, log_path = tempfile.mkstemp(suffix=".log", prefix=f"hubnet-{opts.name}-")
+    os.close(fd)
     start = time.perf_counter()
     bound: float | None
     if opts.name == "highs":
         if not pulp.HiGHS().available():
             raise SolverError("HiGHS is not available: pip install highspy")
-        prob.solve(_highs(opts))
+        try:
+            prob.solve(_highs(opts, log_path, progress))
+            log_text = Path(log_path).read_text(errors="replace")
+        finally:
+            Path(log_path).unlink(missing_ok=True)
         seconds = time.perf_counter() - start
         info = prob.solverModel.getInfo()
         model_status = prob.solverModel.getModelStatus()
@@ -166,12 +248,13 @@ def run_solver(model: HubModel, opts: SolverParams) -> SolveStats:
         if not np.isfinite(bound):
             bound = None
     else:
-        fd, log_path = tempfile.mkstemp(suffix=".log", prefix="hubnet-cbc-")
-        os.close(fd)
+        watcher = _LogWatcher(log_path, progress)
+        watcher.start()
         try:
             prob.solve(_cbc(opts, log_path))
             log_text = Path(log_path).read_text(errors="replace")
         finally:
+            watcher.done.set()
             Path(log_path).unlink(missing_ok=True)
         seconds = time.perf_counter() - start
         has_plan = prob.sol_status in (pulp.LpSolutionOptimal, pulp.LpSolutionIntegerFeasible)
@@ -188,8 +271,6 @@ def run_solver(model: HubModel, opts: SolverParams) -> SolveStats:
     gap = None
     if objective is not None and bound is not None:
         gap = max(0.0, (objective - bound) / max(abs(objective), 1e-9))
-        if status == "optimal":
-            gap = min(gap, opts.gap) if gap <= opts.gap * 1.0001 else gap
     return SolveStats(
         solver=opts.name,
         status=status,
@@ -200,6 +281,7 @@ def run_solver(model: HubModel, opts: SolverParams) -> SolveStats:
         build_seconds=0.0,
         formulation=model.formulation,
         options=options,
+        log=log_text,
     )
 
 
@@ -259,7 +341,7 @@ def solve_network(
         f"solving with {opts.name}"
         + (f" (limit {opts.time_limit_s:g} s)" if opts.time_limit_s else "")
     )
-    stats = run_solver(model, opts)
+    stats = run_solver(model, opts, progress)
     stats = dataclasses.replace(stats, build_seconds=build_seconds)
     if stats.status == "infeasible":
         raise InfeasibleError(
