@@ -51,6 +51,7 @@ from hubnet.errors import InputError, Problem
 from hubnet.units import DEFAULT_CIRCUITY, VOLUME_UNITS
 
 Allocation = Literal["single", "multiple"]
+Formulation = Literal["auto", "flow", "benders"]
 SolverName = Literal["auto", "highs", "cbc"]
 DistanceMethod = Literal["auto", "geodesic", "euclidean", "matrix"]
 
@@ -131,6 +132,11 @@ class HubModelParams:
         factor below 1 models the economies of scale on trunks.
     cost_per_unit_km
         Currency per unit of volume per km.
+    formulation
+        ``flow`` (the compact flow formulation for either allocation),
+        ``benders`` (multiple allocation only: flows projected out, for
+        large networks) or ``auto`` (Benders for multiple allocation, flow
+        for single).
     """
 
     allocation: Allocation = "single"
@@ -140,6 +146,7 @@ class HubModelParams:
     transfer_factor: float = 0.75
     distribution_factor: float = 1.0
     cost_per_unit_km: float = 1.0
+    formulation: Formulation = "auto"
 
 
 @dataclass(frozen=True, slots=True)
@@ -234,11 +241,14 @@ class _Model(_Strict):
     transfer_factor: float = Field(default=0.75, ge=0)
     distribution_factor: float = Field(default=1.0, ge=0)
     cost_per_unit_km: float = Field(default=1.0, gt=0)
+    formulation: Formulation = "auto"
 
     @model_validator(mode="after")
     def _capacity_needs_single(self) -> _Model:
         if self.capacitated and self.allocation != "single":
             raise ValueError("capacitated = true needs allocation = 'single'")
+        if self.formulation == "benders" and self.allocation != "multiple":
+            raise ValueError("formulation = 'benders' needs allocation = 'multiple'")
         return self
 
 

@@ -183,3 +183,14 @@ def starting_plan(
     if not np.isfinite(cost):
         return None
     return sorted(hubs), assign, float(cost)
+
+
+def allocate_to_hubs(
+    data: NetworkData, d: np.ndarray, params: HubModelParams, hubs: list[int]
+) -> np.ndarray | None:
+    """Single allocation of every site to one of the given hubs (cheap, then 1-opt).
+
+    Returns the hub index of each site, or ``None`` when capacities cannot
+    be met by this simple rule.
+    """
+    return _Pricer(data, d, params).allocate(sorted(hubs))

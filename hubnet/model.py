@@ -92,7 +92,9 @@ class HubModel:
                 v.setInitialValue(1 if assign[i] == k else 0)
 
 
-def _check_feasible(data: NetworkData, params: HubModelParams, cand: list[int]) -> None:
+def check_plan_possible(data: NetworkData, params: HubModelParams) -> None:
+    """Raise :class:`InputError` when no plan can exist (no candidate, too many hubs asked)."""
+    cand = [k for k, s in enumerate(data.sites) if s.is_candidate]
     problems = []
     forced = [k for k, s in enumerate(data.sites) if s.hub_status == "open"]
     if not cand:
@@ -156,8 +158,8 @@ def build_model(data: NetworkData, d: np.ndarray, params: HubModelParams) -> Hub
     InputError
         When no plan can exist (no candidate hub, more hubs than candidates).
     """
+    check_plan_possible(data, params)
     cand = [k for k, s in enumerate(data.sites) if s.is_candidate]
-    _check_feasible(data, params, cand)
     if params.allocation == "single":
         return _single_allocation(data, d, params, cand)
     return _multiple_allocation(data, d, params, cand)

@@ -12,21 +12,22 @@ from __future__ import annotations
 import dataclasses
 import os
 import re
-import sys
 import tempfile
 import threading
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from pathlib import Path
 
 import numpy as np
 import pulp
 
+from hubnet._highs import silence_highs_banner
+from hubnet.benders import solve_multiple_benders
 from hubnet.config import HubModelParams, SolverName, SolverParams
 from hubnet.data import NetworkData
-from hubnet.errors import InfeasibleError, NoSolutionError, SolverError
-from hubnet.heuristics import starting_plan
-from hubnet.model import HubModel, build_model
+from hubnet.errors import InfeasibleError, InputError, NoSolutionError, Problem, SolverError
+from hubnet.heuristics import allocate_to_hubs, starting_plan
+from hubnet.model import HubModel, build_model, check_plan_possible
 from hubnet.solution import RunStatus, Solution, SolveStats, evaluate_plan
 
 Progress = Callable[[str], None]
@@ -34,28 +35,6 @@ Progress = Callable[[str], None]
 
 def _quiet(_: str) -> None:
     return None
-
-
-_BANNER_SHOWN = False
-
-
-def _silence_highs_banner() -> None:
-    """Create one HiGHS object with stdout muted: HiGHS prints its banner once per process."""
-    global _BANNER_SHOWN
-    if _BANNER_SHOWN:
-        return
-    import highspy
-
-    sys.stdout.flush()
-    saved = os.dup(1)
-    try:
-        with open(os.devnull, "w") as null:
-            os.dup2(null.fileno(), 1)
-            highspy.Highs()
-    finally:
-        os.dup2(saved, 1)
-        os.close(saved)
-    _BANNER_SHOWN = True
 
 
 def pick_solver(name: SolverName, allocation: str) -> SolverName:
@@ -91,7 +70,7 @@ class _HighsWithStart(pulp.HiGHS):
         self.every_s = every_s
 
     def createAndConfigureSolver(self, lp: pulp.LpProblem) -> None:  # noqa: N802 (PuLP's name)
-        _silence_highs_banner()
+        silence_highs_banner()
         super().createAndConfigureSolver(lp)
         model = lp.solverModel
         model.setOptionValue("output_flag", True)
@@ -293,6 +272,7 @@ def solve_network(
     *,
     scenario: str = "",
     progress: Progress = _quiet,
+    start_hubs: Sequence[str] | None = None,
 ) -> Solution:
     """Choose hubs and routes: build, start, solve, re-price.
 
@@ -310,6 +290,9 @@ def solve_network(
         Scenario name for the outputs.
     progress
         Called with one-line messages as the work goes on.
+    start_hubs
+        Site ids of a known plan's hubs (for example last night's) to start
+        from instead of the local search.
 
     Returns
     -------
@@ -324,25 +307,30 @@ def solve_network(
         The time limit ran out before any plan was found.
     """
     opts = dataclasses.replace(opts, name=pick_solver(opts.name, params.allocation))
-    t0 = time.perf_counter()
-    progress(f"building the {params.allocation}-allocation model for {data.n} sites")
-    model = build_model(data, d, params)
-    build_seconds = time.perf_counter() - t0
-    progress(
-        f"model built in {build_seconds:.1f} s: {len(model.problem.variables())} variables, "
-        f"{model.problem.numConstraints()} constraints"
-    )
-    start = starting_plan(data, d, params)
-    if start is not None:
-        hubs, assign, cost = start
-        model.set_start(hubs, assign)
-        progress(f"starting plan from local search: {len(hubs)} hubs, cost {cost:,.2f}")
-    progress(
-        f"solving with {opts.name}"
-        + (f" (limit {opts.time_limit_s:g} s)" if opts.time_limit_s else "")
-    )
-    stats = run_solver(model, opts, progress)
-    stats = dataclasses.replace(stats, build_seconds=build_seconds)
+    check_plan_possible(data, params)
+    start = _start(data, d, params, start_hubs, progress)
+    limit = f" (limit {opts.time_limit_s:g} s)" if opts.time_limit_s else ""
+    if params.allocation == "multiple" and params.formulation in ("auto", "benders"):
+        progress(f"solving by Benders decomposition, master on {opts.name}{limit}")
+        hubs, stats = solve_multiple_benders(
+            data, d, params, opts, None if start is None else start[0], progress
+        )
+        assign = None
+    else:
+        t0 = time.perf_counter()
+        progress(f"building the {params.allocation}-allocation model for {data.n} sites")
+        model = build_model(data, d, params)
+        build_seconds = time.perf_counter() - t0
+        progress(
+            f"model built in {build_seconds:.1f} s: {len(model.problem.variables())} variables, "
+            f"{model.problem.numConstraints()} constraints"
+        )
+        if start is not None:
+            model.set_start(start[0], start[1])
+        progress(f"solving with {opts.name}{limit}")
+        stats = run_solver(model, opts, progress)
+        stats = dataclasses.replace(stats, build_seconds=build_seconds)
+        hubs, assign = model.open_hubs(), model.allocation()
     if stats.status == "infeasible":
         raise InfeasibleError(
             "no plan satisfies the constraints: check sort capacities against volumes, "
@@ -357,6 +345,36 @@ def solve_network(
         f"{stats.best_bound if stats.best_bound is not None else float('nan'):,.2f}, "
         f"gap {100 * (stats.gap or 0):.4f} % in {stats.solve_seconds:.1f} s"
     )
-    return evaluate_plan(
-        data, d, params, model.open_hubs(), model.allocation(), stats, scenario=scenario
+    return evaluate_plan(data, d, params, hubs, assign, stats, scenario=scenario)
+
+
+def _start(
+    data: NetworkData,
+    d: np.ndarray,
+    params: HubModelParams,
+    start_hubs: Sequence[str] | None,
+    progress: Progress,
+) -> tuple[list[int], np.ndarray | None] | None:
+    """A starting plan: the given hubs (e.g. last night's plan) or local search."""
+    if start_hubs is not None:
+        unknown = [h for h in start_hubs if h not in data.ids]
+        if unknown:
+            raise InputError(
+                Problem("warm start", None, "hubs", f"unknown hub ids {', '.join(unknown)}")
+            )
+        hubs = sorted(data.index(h) for h in start_hubs)
+        assign = None
+        if params.allocation == "single":
+            assign = allocate_to_hubs(data, d, params, hubs)
+        progress(f"starting plan given: {len(hubs)} hubs")
+        return hubs, assign
+    t0 = time.perf_counter()
+    found = starting_plan(data, d, params)
+    if found is None:
+        return None
+    hubs, assign, cost = found
+    progress(
+        f"starting plan from local search: {len(hubs)} hubs, cost {cost:,.2f} "
+        f"({time.perf_counter() - t0:.1f} s)"
     )
+    return hubs, assign

@@ -163,3 +163,18 @@ def test_tiny_random_against_enumeration(
         if capacitated:
             for h in sol.hubs:
                 assert h.capacity is None or h.inbound <= h.capacity + 1e-6
+
+
+@pytest.mark.parametrize(("dataset", "n", "p"), [("cab", 15, 3), ("ap", 20, 4), ("cab", 25, 2)])
+def test_benders_matches_flow_formulation(dataset: str, n: int, p: int) -> None:
+    """Two independent exact methods for multiple allocation give one optimum."""
+    import dataclasses
+
+    data = cab_network(n) if dataset == "cab" else ap_network(n)
+    d = euclid(data)
+    base = _cab_params("multiple", p, 0.6) if dataset == "cab" else ap_params("multiple", p)
+    flow = solve_network(data, d, dataclasses.replace(base, formulation="flow"), SolverParams())
+    cuts = solve_network(data, d, dataclasses.replace(base, formulation="benders"), SolverParams())
+    assert flow.stats.status == cuts.stats.status == "optimal"
+    assert "Benders" in cuts.stats.formulation and "flow" in flow.stats.formulation
+    assert cuts.costs["total"] == pytest.approx(flow.costs["total"], rel=1e-7)

@@ -1,0 +1,476 @@
+"""Benders decomposition for multiple allocation: large networks solved exactly.
+
+The origin-based flow formulation of Ernst and Krishnamoorthy (1998) has
+O(n^3) flow variables, too many to build beyond ~50 sites. Here the flows
+are projected out (Benders 1962; for hub location see Camargo, Miranda and
+Luna 2008, and Contreras, Cordeau and Laporte 2011, Operations Research
+59(6)): a small **master** MILP built in PuLP keeps one binary per
+candidate hub and one cost variable ``theta[i]`` per origin; for each
+origin a **subproblem** LP routes the origin's volume through the open
+hubs, and its dual prices give a cut ``theta[i] >= const - sum_k coef[k]
+* y[k]`` valid for every hub set.
+
+Two phases:
+
+1. LP phase: the master's relaxation is solved and cut until it reaches
+   the LP bound of the flow formulation (subproblems are solved on the
+   support of the fractional hub vector, their duals are extended to the
+   other candidates in closed form, so every cut is valid everywhere).
+2. Integer phase: the master MILP is re-solved with the cuts; each new hub
+   set is priced exactly and cut, until the best plan's cost and the
+   master's bound meet within the gap.
+
+Assumes leg costs satisfy the triangle inequality (true for geodesic,
+Euclidean and road distances of one metric); plan costs are always priced
+exactly, so a user matrix that breaks it can only leave a gap, never a
+wrong cost.
+
+Subproblem LPs are solved by HiGHS (highspy) whatever solver runs the
+master: they are the decomposition's inner step, not the model.
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import highspy
+import numpy as np
+import pulp
+
+from hubnet._highs import silence_highs_banner
+from hubnet.config import HubModelParams, SolverParams
+from hubnet.data import NetworkData
+from hubnet.solution import RunStatus, SolveStats, best_hub_pairs, unit_path_costs
+
+Progress = Callable[[str], None]
+_INF = highspy.kHighsInf
+_SUB_PRESOLVE = "off"
+
+
+@dataclass(frozen=True)
+class _Costs:
+    """Per-unit leg costs with handling folded in, over candidate hubs."""
+
+    collect: np.ndarray  # (n, q): origin i to first hub k, plus handling at k
+    transfer: np.ndarray  # (q, q): hub k to hub m, plus handling at m; 0 on the diagonal
+    deliver: np.ndarray  # (q, n): hub m to destination j
+    flows: np.ndarray  # (n, n)
+    fixed: np.ndarray  # (q,)
+
+
+def _costs(data: NetworkData, d: np.ndarray, params: HubModelParams, cand: np.ndarray) -> _Costs:
+    c, t, dist = unit_path_costs(d, params)
+    handling = np.array([s.handling_cost for s in data.sites])
+    transfer = t[np.ix_(cand, cand)] + handling[cand][None, :]
+    np.fill_diagonal(transfer, 0.0)
+    return _Costs(
+        collect=c[:, cand] + handling[cand][None, :],
+        transfer=transfer,
+        deliver=dist[cand, :],
+        flows=data.flow_matrix(),
+        fixed=np.array([data.sites[k].hub_fixed_cost for k in cand]),
+    )
+
+
+def _origin_cut(
+    costs: _Costs, i: int, y: np.ndarray, support: np.ndarray
+) -> tuple[float, np.ndarray, float]:
+    """Solve origin i's routing LP on the open (or partly open) hubs.
+
+    Parameters
+    ----------
+    costs
+        Leg costs.
+    i
+        Origin site index.
+    y
+        Hub values over candidates, in [0, 1].
+    support
+        Candidate positions with ``y > 0``.
+
+    Returns
+    -------
+    tuple
+        ``(const, coef, value)``: the cut ``theta_i >= const - coef @ y``
+        (valid for every hub vector) and the LP value at ``y``.
+    """
+    w = costs.flows[i]
+    out_vol = float(w.sum())
+    q_all = len(y)
+    dests = np.nonzero(w > 0)[0]
+    s = support
+    q, nj = len(s), len(dests)
+    # Columns: z[a] (share collected at hub s[a]), t[a, b] (transfer a->b,
+    # a != b), x[a, jj] (delivery from hub s[a] to destination dests[jj]).
+    aa, bb = np.nonzero(~np.eye(q, dtype=bool))
+    n_z, n_t, n_x = q, len(aa), q * nj
+    cost = np.concatenate(
+        [
+            costs.collect[i, s] * out_vol,
+            costs.transfer[s[aa], s[bb]],
+            costs.deliver[np.ix_(s, dests)].ravel(),
+        ]
+    )
+    upper = np.concatenate([y[s], np.full(n_t, _INF), np.outer(y[s], w[dests]).ravel()])
+    # Rows: 0 = shares sum to 1; 1..q = conservation at each hub;
+    # q+1..q+nj = each destination receives its volume.
+    z_cols = np.arange(n_z)
+    t_cols = n_z + np.arange(n_t)
+    x_cols = n_z + n_t + np.arange(n_x)
+    xa = np.repeat(np.arange(q), nj)
+    xj = np.tile(np.arange(nj), q)
+    rows = np.concatenate([np.zeros(q), 1 + z_cols, 1 + aa, 1 + bb, 1 + xa, 1 + q + xj])
+    cols = np.concatenate([z_cols, z_cols, t_cols, t_cols, x_cols, x_cols])
+    vals = np.concatenate(
+        [np.ones(q), np.full(q, out_vol), -np.ones(n_t), np.ones(n_t), -np.ones(n_x), np.ones(n_x)]
+    )
+    order = np.lexsort((rows, cols))
+    rows, cols, vals = rows[order].astype(np.int32), cols[order], vals[order]
+    n_col = n_z + n_t + n_x
+    start = np.searchsorted(cols, np.arange(n_col + 1)).astype(np.int32)
+    rhs = np.concatenate([[1.0], np.zeros(q), w[dests]])
+
+    lp = highspy.HighsLp()
+    lp.num_col_ = n_col
+    lp.num_row_ = len(rhs)
+    lp.col_cost_ = cost
+    lp.col_lower_ = np.zeros(n_col)
+    lp.col_upper_ = upper
+    lp.row_lower_ = rhs
+    lp.row_upper_ = rhs
+    lp.a_matrix_.format_ = highspy.MatrixFormat.kColwise
+    lp.a_matrix_.start_ = start
+    lp.a_matrix_.index_ = rows
+    lp.a_matrix_.value_ = vals
+    h = highspy.Highs()
+    h.setOptionValue("output_flag", False)
+    h.setOptionValue("presolve", _SUB_PRESOLVE)
+    h.passModel(lp)
+    h.run()
+    duals = np.asarray(h.getSolution().row_dual)
+    value = float(h.getInfo().objective_function_value)
+
+    sigma = float(duals[0])
+    phi = np.empty(q_all)
+    phi[s] = duals[1 : 1 + q]
+    pi = np.zeros(costs.flows.shape[0])
+    pi[dests] = duals[1 + q :]
+    # Extend the hub potentials to closed hubs so every transfer column
+    # prices non-negative (triangle inequality makes this choice feasible).
+    closed = np.setdiff1d(np.arange(q_all), s)
+    if len(closed):
+        phi[closed] = (phi[s][None, :] - costs.transfer[np.ix_(closed, s)]).max(axis=1)
+    alpha = np.maximum(0.0, sigma + out_vol * (phi - costs.collect[i]))
+    beta = np.maximum(0.0, pi[None, :] - phi[:, None] - costs.deliver)
+    coef = alpha + (beta * w[None, :]).sum(axis=1)
+    const = sigma + float((w * pi).sum())
+    return const, coef, value
+
+
+def _plan_cost(data: NetworkData, d: np.ndarray, params: HubModelParams, hubs: list[int]) -> float:
+    """Exact cost of a multiple-allocation plan (currency per day)."""
+    handling = np.array([s.handling_cost for s in data.sites])
+    unit, _, _ = best_hub_pairs(d, params, hubs, handling)
+    fixed = sum(data.sites[k].hub_fixed_cost for k in hubs)
+    return float((data.flow_matrix() * unit).sum() + fixed)
+
+
+@dataclass
+class _MasterResult:
+    ok: bool  # a solution was found
+    proven: bool  # optimal (LP) or proven within the gap (MIP)
+    infeasible: bool
+    value: float  # objective of the solution found
+    bound: float  # proven lower bound on the master's optimum
+    y: np.ndarray
+    theta: np.ndarray
+
+
+class _Master:
+    """The master problem, built in PuLP and re-solved after each round of cuts.
+
+    With HiGHS the model PuLP built is kept inside HiGHS and cuts are added
+    to it directly, so each re-solve starts from the previous basis; with
+    CBC the PuLP problem is re-solved from scratch.
+    """
+
+    def __init__(
+        self,
+        prob: pulp.LpProblem,
+        y: list[pulp.LpVariable],
+        theta: list[pulp.LpVariable],
+        opts: SolverParams,
+    ) -> None:
+        self.prob, self.y, self.theta, self.opts = prob, y, theta, opts
+        self.highs: highspy.Highs | None = None
+        self.mip = False
+
+    def add_cut(self, th: int, coef: dict[int, float], const: float, name: str) -> None:
+        """Add ``theta[th] + sum coef[a] * y[a] >= const``."""
+        if self.highs is not None:
+            idx = np.array([self.theta[th].index] + [self.y[a].index for a in coef], dtype=np.int32)
+            val = np.array([1.0] + list(coef.values()))
+            self.highs.addRow(const, _INF, len(idx), idx, val)
+        else:
+            expr = pulp.LpAffineExpression(
+                [(self.theta[th], 1.0)] + [(self.y[a], c) for a, c in coef.items()]
+            )
+            self.prob.addConstraint(expr >= const, name)
+
+    def make_integer(self) -> None:
+        """Switch the hub variables to binary for the integer phase."""
+        self.mip = True
+        for v in self.y:
+            v.cat = pulp.LpInteger
+        if self.highs is not None:
+            idx = np.array([v.index for v in self.y], dtype=np.int32)
+            kinds = np.array([highspy.HighsVarType.kInteger] * len(idx))
+            self.highs.changeColsIntegrality(len(idx), idx, kinds)
+
+    def solve(self, time_left: float | None) -> _MasterResult:
+        """Solve the master (LP or MIP) within the time left (s)."""
+        limit = None if time_left is None else max(1.0, time_left)
+        gap = self.opts.gap / 10
+        if self.opts.name == "cbc":
+            solver = pulp.PULP_CBC_CMD(
+                msg=False, mip=self.mip, timeLimit=limit, gapRel=gap, threads=self.opts.threads
+            )
+            self.prob.solve(solver)
+            ok = self.prob.sol_status in (pulp.LpSolutionOptimal, pulp.LpSolutionIntegerFeasible)
+            proven = self.prob.sol_status == pulp.LpSolutionOptimal
+            value = float(pulp.value(self.prob.objective)) if ok else np.inf
+            return _MasterResult(
+                ok=ok,
+                proven=proven,
+                infeasible=self.prob.status == pulp.LpStatusInfeasible,
+                value=value,
+                bound=value * (1 - gap) if proven else -np.inf,
+                y=np.array([v.varValue or 0.0 for v in self.y]),
+                theta=np.array([v.varValue or 0.0 for v in self.theta]),
+            )
+        if self.highs is None:
+            # First solve: PuLP hands its model to HiGHS; keep it there.
+            self.prob.solve(
+                pulp.HiGHS(
+                    msg=False, mip=self.mip, timeLimit=limit, gapRel=gap, threads=self.opts.threads
+                )
+            )
+            self.highs = self.prob.solverModel
+        else:
+            h = self.highs
+            h.setOptionValue("time_limit", float(limit) if limit is not None else _INF)
+            h.run()
+        h = self.highs
+        status = h.getModelStatus()
+        info = h.getInfo()
+        col = np.asarray(h.getSolution().col_value)
+        infeasible = status == highspy.HighsModelStatus.kInfeasible
+        proven = status == highspy.HighsModelStatus.kOptimal
+        if self.mip:
+            ok = info.primal_solution_status == 2  # kSolutionStatusFeasible
+            bound = float(info.mip_dual_bound)
+        else:
+            ok = proven
+            bound = float(info.objective_function_value) if proven else -np.inf
+        return _MasterResult(
+            ok=ok and not infeasible,
+            proven=proven,
+            infeasible=infeasible,
+            value=float(info.objective_function_value) if ok else np.inf,
+            bound=bound if np.isfinite(bound) else -np.inf,
+            y=col[[v.index for v in self.y]] if ok else np.zeros(len(self.y)),
+            theta=col[[v.index for v in self.theta]] if ok else np.zeros(len(self.theta)),
+        )
+
+
+def solve_multiple_benders(
+    data: NetworkData,
+    d: np.ndarray,
+    params: HubModelParams,
+    opts: SolverParams,
+    start_hubs: list[int] | None,
+    progress: Progress,
+) -> tuple[list[int], SolveStats]:
+    """Solve multiple allocation by Benders decomposition.
+
+    Parameters
+    ----------
+    data, d, params
+        Network, distances (km) and model parameters.
+    opts
+        Solver for the master problem (``highs`` or ``cbc``), time limit
+        (s) and relative gap.
+    start_hubs
+        Matrix indices of a starting plan, or ``None``.
+    progress
+        Called with one line per iteration.
+
+    Returns
+    -------
+    tuple
+        Best hub set (matrix indices) and the solve report.
+    """
+    t0 = time.perf_counter()
+    silence_highs_banner()
+    cand = np.array([k for k, s in enumerate(data.sites) if s.is_candidate])
+    q = len(cand)
+    costs = _costs(data, d, params, cand)
+    senders = [i for i in range(data.n) if costs.flows[i].sum() > 0]
+
+    prob = pulp.LpProblem("benders_master", pulp.LpMinimize)
+    y = [prob.add_variable(f"h_{k}", 0, 1) for k in cand]
+    theta = {i: prob.add_variable(f"theta_{i}", 0) for i in senders}
+    prob += pulp.LpAffineExpression(
+        [(y[a], float(costs.fixed[a])) for a in range(q) if costs.fixed[a]]
+        + [(v, 1.0) for v in theta.values()]
+    )
+    if params.hubs is not None:
+        prob += pulp.LpAffineExpression([(v, 1.0) for v in y]) == params.hubs, "hub_count"
+    for a, k in enumerate(cand):
+        if data.sites[k].hub_status == "open":
+            prob += y[a] >= 1, f"forced_open_{k}"
+    prob += pulp.LpAffineExpression([(v, 1.0) for v in y]) >= 1, "at_least_one_hub"
+
+    senders_list = list(theta)
+    master = _Master(prob, y, [theta[i] for i in senders_list], opts)
+    n_cuts = 0
+
+    def add_cuts(
+        y_sep: np.ndarray, y_now: np.ndarray | None, th_now: np.ndarray | None, tag: str
+    ) -> tuple[int, float]:
+        """Cut at ``y_sep``; keep only cuts violated at the master point (y_now, th_now)."""
+        nonlocal n_cuts
+        support = np.nonzero(y_sep > 1e-9)[0]
+        added, total = 0, 0.0
+        for pos_i, i in enumerate(senders_list):
+            const, coef, value = _origin_cut(costs, i, y_sep, support)
+            total += value
+            if y_now is not None and th_now is not None:
+                if th_now[pos_i] >= const - coef @ y_now - 1e-7 * max(1.0, abs(const)):
+                    continue
+            nz = np.nonzero(coef > 1e-12 * max(1.0, abs(const)))[0]
+            master.add_cut(pos_i, {int(a): float(coef[a]) for a in nz}, const, f"cut_{tag}_{i}")
+            added += 1
+        n_cuts += added
+        return added, total
+
+    best_hubs: list[int] | None = None
+    best_cost = np.inf
+    core = np.zeros(q)
+    if start_hubs:
+        pos = {int(k): a for a, k in enumerate(cand)}
+        core[[pos[k] for k in start_hubs if k in pos]] = 1.0
+        add_cuts(core, None, None, "start")
+        best_hubs, best_cost = sorted(start_hubs), _plan_cost(data, d, params, list(start_hubs))
+
+    def time_left() -> float | None:
+        if opts.time_limit_s is None:
+            return None
+        return opts.time_limit_s - (time.perf_counter() - t0)
+
+    def out_of_time() -> bool:
+        left = time_left()
+        return left is not None and left <= 0
+
+    # Phase 1: the LP relaxation of the master, with in-out stabilisation
+    # (Ben-Ameur and Neto 2007): cut between the LP point and a core point
+    # (the starting plan), which needs fewer rounds than cutting at the LP
+    # point alone; cut at the LP point itself once that stops cutting.
+    bound = -np.inf
+    it = 0
+    weight = 0.5 if core.any() else 1.0
+    while not out_of_time() and it < 500:
+        it += 1
+        res = master.solve(time_left())
+        if not res.ok:
+            break
+        bound = max(bound, res.bound)
+        y_sep = weight * res.y + (1 - weight) * core
+        added, _ = add_cuts(y_sep, res.y, res.theta, f"lp{it}")
+        if it % 5 == 1 or added == 0:
+            progress(f"LP phase, round {it}: bound {bound:,.2f}, {n_cuts} cuts")
+        if added == 0:
+            if weight >= 1.0:
+                break
+            weight = 1.0
+            added, _ = add_cuts(res.y, res.y, res.theta, f"lp{it}b")
+            if added == 0:
+                break
+        core = 0.5 * (core + res.y) if core.any() else core
+
+    # Phase 2: integer master, one exact pricing and cut per new hub set.
+    master.make_integer()
+    status: RunStatus = "time_limit"
+    rounds = 0
+    while not out_of_time():
+        rounds += 1
+        res = master.solve(time_left())
+        if res.infeasible:
+            status = "infeasible"
+            break
+        if not res.ok:
+            break
+        if res.proven:
+            bound = max(bound, res.bound)
+        yv = np.round(res.y)
+        hubs = sorted(int(cand[a]) for a in np.nonzero(yv > 0.5)[0])
+        cost = _plan_cost(data, d, params, hubs)
+        if cost < best_cost:
+            best_cost, best_hubs = cost, hubs
+        gap = (best_cost - bound) / max(abs(best_cost), 1e-9)
+        progress(
+            f"integer phase, round {rounds}: best plan {best_cost:,.2f}, bound {bound:,.2f}, "
+            f"gap {100 * max(gap, 0):.4f} %"
+        )
+        if res.proven and gap <= opts.gap:
+            status = "optimal"
+            break
+        added, _ = add_cuts(yv, yv, res.theta, f"ip{rounds}")
+        if added == 0:
+            # The master prices this hub set exactly already, so its value is
+            # both a bound and the plan's cost: nothing is left to prove.
+            if res.proven:
+                bound = max(bound, res.value * (1 - opts.gap / 10))
+                if best_cost - bound <= opts.gap * abs(best_cost):
+                    status = "optimal"
+            break
+
+    seconds = time.perf_counter() - t0
+    if best_hubs is None:
+        stats_status: RunStatus = "infeasible" if status == "infeasible" else "error"
+        return [], SolveStats(
+            solver=opts.name,
+            status=stats_status,
+            objective=None,
+            best_bound=None,
+            gap=None,
+            solve_seconds=seconds,
+            build_seconds=0.0,
+            formulation="multiple-allocation Benders (EK98 flows projected out)",
+        )
+    finite_bound = float(bound) if np.isfinite(bound) else None
+    gap_value = (
+        max(0.0, (best_cost - finite_bound) / max(abs(best_cost), 1e-9))
+        if finite_bound is not None
+        else None
+    )
+    return best_hubs, SolveStats(
+        solver=opts.name,
+        status=status,
+        objective=float(best_cost),
+        best_bound=finite_bound,
+        gap=gap_value,
+        solve_seconds=seconds,
+        build_seconds=0.0,
+        formulation="multiple-allocation Benders (EK98 flows projected out)",
+        options={
+            "time_limit_s": opts.time_limit_s,
+            "gap": opts.gap,
+            "threads": opts.threads,
+            "lp_rounds": it,
+            "integer_rounds": rounds,
+            "cuts": n_cuts,
+        },
+    )
