@@ -42,6 +42,7 @@ import pulp
 from hubnet._highs import silence_highs_banner
 from hubnet.config import HubModelParams, SolverParams
 from hubnet.data import NetworkData
+from hubnet.heuristics import polish_multiple
 from hubnet.solution import RunStatus, SolveStats, best_hub_pairs, unit_path_costs
 
 Progress = Callable[[str], None]
@@ -381,12 +382,19 @@ def solve_multiple_benders(
     bound = -np.inf
     it = 0
     weight = 0.5 if core.any() else 1.0
+    history: list[float] = []
+    last_y: np.ndarray | None = None
     while not out_of_time() and it < 500:
         it += 1
         res = master.solve(time_left())
         if not res.ok:
             break
+        last_y = res.y
         bound = max(bound, res.bound)
+        history.append(bound)
+        if len(history) > 4 and bound - history[-5] <= 1e-6 * max(1.0, abs(bound)):
+            progress(f"LP phase, round {it}: bound {bound:,.2f} has stopped rising")
+            break
         y_sep = weight * res.y + (1 - weight) * core
         added, _ = add_cuts(y_sep, res.y, res.theta, f"lp{it}")
         if it % 5 == 1 or added == 0:
@@ -399,6 +407,25 @@ def solve_multiple_benders(
             if added == 0:
                 break
         core = 0.5 * (core + res.y) if core.any() else core
+
+    # Between the phases: a plan from the LP solution, improved by swaps
+    # within its support (exactly priced), tightens the incumbent cheaply.
+    if last_y is not None and params.hubs is not None:
+        pool = sorted(int(cand[a]) for a in np.nonzero(last_y > 1e-6)[0])
+        seed = sorted(int(cand[a]) for a in np.argsort(-last_y)[: params.hubs])
+        if best_hubs is not None:
+            pool = sorted(set(pool) | set(best_hubs))
+        budget = 30.0 if time_left() is None else max(0.0, min(30.0, 0.2 * (time_left() or 0)))
+        for first in [seed] + ([best_hubs] if best_hubs is not None else []):
+            hubs_p, cost_p = polish_multiple(data, d, params, first, pool, budget)
+            if cost_p < best_cost:
+                best_cost, best_hubs = cost_p, hubs_p
+                progress(f"plan from the LP solution: cost {best_cost:,.2f}")
+        if best_hubs is not None:
+            pos = {int(k): a for a, k in enumerate(cand)}
+            y_best = np.zeros(q)
+            y_best[[pos[k] for k in best_hubs]] = 1.0
+            add_cuts(y_best, None, None, "lpplan")
 
     # Phase 2: integer master, one exact pricing and cut per new hub set.
     master.make_integer()

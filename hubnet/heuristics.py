@@ -105,10 +105,69 @@ class _Pricer:
         return float(cost + self.fixed[h].sum())
 
 
+def _greedy_multiple(
+    pricer: _Pricer, cand: list[int], forced: list[int], target: int | None
+) -> list[int]:
+    """Add hubs one at a time, each the one that lowers multiple-allocation cost most.
+
+    Incremental: with ``reach[i, x]`` the cheapest cost from origin i to hub
+    x through an open first hub, and ``onward[x, j]`` the cheapest cost from
+    hub x to destination j through an open second hub, pricing a new hub x
+    costs O(n^2), so a greedy step over all candidates is O(q n^2).
+    Without a hub count, hubs are added while they pay their fixed cost.
+    """
+    c = pricer.c + pricer.handling[None, :]  # (n, n): i to first hub k, with handling at k
+    t2 = pricer.t2  # (n, n): k to m with handling at m, 0 on the diagonal
+    dist = pricer.dist  # (n, n): m to j
+    w = pricer.w
+    n = w.shape[0]
+    cur = np.full((n, n), np.inf)
+    reach = np.full((n, n), np.inf)
+    onward = np.full((n, n), np.inf)
+
+    def priced(x: int) -> np.ndarray:
+        via_x_first = c[:, x][:, None] + np.minimum(onward[x, :], dist[x, :])[None, :]
+        via_x_second = reach[:, x][:, None] + dist[x, :][None, :]
+        return np.minimum(cur, np.minimum(via_x_first, via_x_second))
+
+    def add(x: int) -> None:
+        nonlocal cur, reach, onward
+        cur = priced(x)
+        reach = np.minimum(reach, c[:, x][:, None] + t2[x, :][None, :])
+        onward = np.minimum(onward, t2[:, x][:, None] + dist[x, :][None, :])
+
+    def total(matrix: np.ndarray) -> float:
+        with np.errstate(invalid="ignore"):
+            return float(np.where(w > 0, w * matrix, 0.0).sum())
+
+    hubs: list[int] = []
+    for k in forced:
+        add(k)
+        hubs.append(k)
+    free = [k for k in cand if k not in hubs]
+    current = total(cur) + pricer.fixed[hubs].sum() if hubs else np.inf
+    while free and (target is None or len(hubs) < target):
+        costs = np.array([total(priced(k)) + pricer.fixed[hubs + [k]].sum() for k in free])
+        best = int(np.argmin(costs))
+        if target is None and hubs and costs[best] >= current:
+            break
+        current = float(costs[best])
+        add(free[best])
+        hubs.append(free.pop(best))
+    return hubs
+
+
 def starting_plan(
-    data: NetworkData, d: np.ndarray, params: HubModelParams, max_rounds: int = 50
+    data: NetworkData,
+    d: np.ndarray,
+    params: HubModelParams,
+    max_rounds: int = 50,
+    max_seconds: float = 60.0,
 ) -> tuple[list[int], np.ndarray | None, float] | None:
     """Find a good plan by greedy construction then swap/add/drop local search.
+
+    The swap search stops after ``max_rounds`` improving rounds or
+    ``max_seconds`` of wall time, whichever comes first.
 
     Returns
     -------
@@ -139,26 +198,16 @@ def starting_plan(
     def proxy(hubs: list[int]) -> float:
         return pricer.multiple(sorted(hubs))
 
-    hubs = list(forced)
     target = params.hubs
-    free = [k for k in cand if k not in hubs]
-    if target is None:
-        # Add hubs while they pay for themselves.
-        cur = proxy(hubs) if hubs else np.inf
-        while free:
-            costs = [proxy(hubs + [k]) for k in free]
-            best = int(np.argmin(costs))
-            if costs[best] >= cur and hubs:
-                break
-            cur = costs[best]
-            hubs.append(free.pop(best))
-    else:
-        while len(hubs) < target:
-            costs = [proxy(hubs + [k]) for k in free]
-            hubs.append(free.pop(int(np.argmin(costs))))
+    hubs = _greedy_multiple(pricer, cand, forced, target)
     cost, assign = price(hubs)
     # Swap (and, without a fixed hub count, add/drop) local search.
+    import time
+
+    t_end = time.perf_counter() + max_seconds
     for _ in range(max_rounds):
+        if time.perf_counter() > t_end:
+            break
         improved = False
         moves: list[list[int]] = []
         for out in [k for k in hubs if k not in forced]:
@@ -173,6 +222,8 @@ def starting_plan(
             ranked = sorted(moves, key=proxy)[:40]
             moves = ranked
         for move in moves:
+            if time.perf_counter() > t_end:
+                break
             c_move, a_move = price(move)
             if c_move < cost - 1e-9 * max(1.0, abs(cost)):
                 hubs, cost, assign = move, c_move, a_move
@@ -194,3 +245,57 @@ def allocate_to_hubs(
     be met by this simple rule.
     """
     return _Pricer(data, d, params).allocate(sorted(hubs))
+
+
+def polish_multiple(
+    data: NetworkData,
+    d: np.ndarray,
+    params: HubModelParams,
+    hubs: list[int],
+    pool: list[int],
+    max_seconds: float = 30.0,
+) -> tuple[list[int], float]:
+    """Swap local search for multiple allocation, swapping in hubs from ``pool`` only.
+
+    Used by the Benders solver with the support of the LP solution as the
+    pool: a small, promising neighbourhood that exact pricing can afford on
+    large networks.
+
+    Parameters
+    ----------
+    data, d, params
+        Network, distances (km), model parameters.
+    hubs
+        Starting hub set (matrix indices).
+    pool
+        Candidate hubs that may be swapped in.
+    max_seconds
+        Wall-clock budget (s).
+
+    Returns
+    -------
+    tuple
+        Best hub set found and its cost (currency per day).
+    """
+    import time
+
+    t_end = time.perf_counter() + max_seconds
+    pricer = _Pricer(data, d, params)
+    forced = {k for k, s in enumerate(data.sites) if s.hub_status == "open"}
+    current = sorted(hubs)
+    cost = pricer.multiple(current)
+    improved = True
+    while improved and time.perf_counter() < t_end:
+        improved = False
+        for out in [k for k in current if k not in forced]:
+            for inn in [k for k in pool if k not in current]:
+                move = sorted([k for k in current if k != out] + [inn])
+                c_move = pricer.multiple(move)
+                if c_move < cost - 1e-9 * max(1.0, abs(cost)):
+                    current, cost, improved = move, c_move, True
+                    break
+                if time.perf_counter() > t_end:
+                    break
+            if improved or time.perf_counter() > t_end:
+                break
+    return current, cost

@@ -369,7 +369,8 @@ def _start(
         progress(f"starting plan given: {len(hubs)} hubs")
         return hubs, assign
     t0 = time.perf_counter()
-    found = starting_plan(data, d, params)
+    budget = 5.0 if params.allocation == "multiple" else 60.0
+    found = starting_plan(data, d, params, max_seconds=budget)
     if found is None:
         return None
     hubs, assign, cost = found

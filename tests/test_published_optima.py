@@ -21,8 +21,13 @@ from benchdata import ap_network, ap_params, euclid, published_rows
 from hubnet.config import SolverParams
 from hubnet.solve import solve_network
 
-#: Rows checked in the default run (seconds each on 2 cores); the rest are slow.
+#: Largest n checked in the default run, per problem (seconds each on 2 cores).
 QUICK_N = {"USApHMP": 25, "UMApHMP": 25, "CSAHLP": 20}
+#: Largest n checked by ``--runslow`` (CI); larger rows and every best-known
+#: row are ``long`` (minutes each: run by hand with ``--runlong``).
+SLOW_N = {"USApHMP": 40, "UMApHMP": 200, "CSAHLP": 40}
+#: Time limit for best-known rows, s: those only require a plan no worse.
+BEST_KNOWN_LIMIT_S = 600.0
 
 
 def _params_for(row):  # type: ignore[no-untyped-def]
@@ -37,8 +42,11 @@ def _params_for(row):  # type: ignore[no-untyped-def]
 
 
 def _marks(row):  # type: ignore[no-untyped-def]
-    quick = row.n <= QUICK_N.get(row.problem, 0) and not row.best_known_only
-    return () if quick else (pytest.mark.slow,)
+    if row.best_known_only or row.n > SLOW_N.get(row.problem, 0):
+        return (pytest.mark.long,)
+    if row.n > QUICK_N.get(row.problem, 0):
+        return (pytest.mark.slow,)
+    return ()
 
 
 ROWS = published_rows()
@@ -52,7 +60,7 @@ def test_published_optimum(row) -> None:  # type: ignore[no-untyped-def]
         ap_network(10)  # skips with the reason when the data is absent
         pytest.fail("published_optima.csv has no rows")
     data, params = _params_for(row)
-    limit = 1800.0 if row.best_known_only else None
+    limit = BEST_KNOWN_LIMIT_S if row.best_known_only else None
     sol = solve_network(data, euclid(data), params, SolverParams(time_limit_s=limit))
     tol = 0.5 * 10 ** (-row.decimals)
     if row.best_known_only:
