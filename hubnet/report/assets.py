@@ -1,4 +1,4 @@
-"""Leaflet's JavaScript and stylesheet, inlined so pages open without a network.
+r"""Leaflet's JavaScript and stylesheet, inlined so pages open without a network.
 
 A map page must render from a file on a laptop with no network (map tiles
 aside), so it cannot link Leaflet from a CDN as folium does by default.
@@ -13,7 +13,7 @@ read from the installed package at run time, and inlined into each page:
 
 - ``leaflet.js`` goes into a ``<script>`` element, with its source-map
   comment removed (the map file is not shipped inline) and any ``</`` made
-  ``<\\/`` so the text cannot close the element early;
+  ``<\/`` so the text cannot close the element early;
 - ``leaflet.css`` goes into a ``<style>`` element, with every
   ``url(images/...)`` it names replaced by a ``data:`` URL of that image,
   so the layer-control icon needs no file beside the page.
@@ -53,13 +53,13 @@ def leaflet_version() -> str:
 
 @functools.cache
 def leaflet_js() -> str:
-    """Leaflet's minified JavaScript, safe to place inside a ``<script>`` element.
+    r"""Leaflet's minified JavaScript, safe to place inside a ``<script>`` element.
 
     Returns
     -------
     str
         The text of ``leaflet.js`` without its ``sourceMappingURL`` comment
-        and with every ``</`` written ``<\\/``.
+        and with every ``</`` written ``<\/``.
     """
     text = (_leaflet_dir() / "leaflet.js").read_text(encoding="utf-8")
     text = re.sub(r"^//# sourceMappingURL=.*$", "", text, flags=re.MULTILINE)

@@ -69,7 +69,7 @@ COLUMNS: dict[str, dict[str, str]] = {
         "volume_per_day": "Volume on the leg, {unit} per day.",
         "unit_km_per_day": "volume_per_day x distance_km: unit-km per day ({unit} x km).",
         "cost_per_day": "Transport cost of the leg's volume, currency per day.",
-        "cost_per_unit": "cost_per_day / volume_per_day, currency per {unit}.",
+        "cost_per_unit": "cost_per_day / volume_per_day, currency per unit of volume ({unit}).",
     },
     "routes": {
         "origin": "Site id where the volume is collected.",
@@ -82,7 +82,7 @@ COLUMNS: dict[str, dict[str, str]] = {
             "Transport and handling cost of the pair's volume, currency per day "
             "(hub fixed costs are not spread over routes)."
         ),
-        "cost_per_unit": "cost_per_day / volume_per_day, currency per {unit}.",
+        "cost_per_unit": "cost_per_day / volume_per_day, currency per unit of volume ({unit}).",
     },
     "hierarchy": {
         "tier": (
