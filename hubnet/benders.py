@@ -410,6 +410,7 @@ def solve_multiple_benders(
 
     # Between the phases: a plan from the LP solution, improved by swaps
     # within its support (exactly priced), tightens the incumbent cheaply.
+    pool: list[int] = []
     if last_y is not None and params.hubs is not None:
         pool = sorted(int(cand[a]) for a in np.nonzero(last_y > 1e-6)[0])
         seed = sorted(int(cand[a]) for a in np.argsort(-last_y)[: params.hubs])
@@ -446,6 +447,19 @@ def solve_multiple_benders(
         cost = _plan_cost(data, d, params, hubs)
         if cost < best_cost:
             best_cost, best_hubs = cost, hubs
+        if pool and params.hubs is not None:
+            # Swaps from the master's plan within the LP support and its hubs.
+            left = time_left()
+            budget = 10.0 if left is None else max(0.0, min(10.0, 0.1 * left))
+            hubs_p, cost_p = polish_multiple(
+                data, d, params, hubs, sorted(set(pool) | set(hubs)), budget
+            )
+            if cost_p < best_cost - 1e-9 * max(1.0, abs(best_cost)):
+                best_cost, best_hubs = cost_p, hubs_p
+                pos = {int(k): a for a, k in enumerate(cand)}
+                y_best = np.zeros(q)
+                y_best[[pos[k] for k in hubs_p]] = 1.0
+                add_cuts(y_best, None, None, f"polish{rounds}")
         gap = (best_cost - bound) / max(abs(best_cost), 1e-9)
         progress(
             f"integer phase, round {rounds}: best plan {best_cost:,.2f}, bound {bound:,.2f}, "
