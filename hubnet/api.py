@@ -9,7 +9,7 @@ Data flows one way: config -> :func:`hubnet.inputs.load_network` ->
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -56,8 +56,17 @@ def load_scenario(
     return LoadedScenario(cfg, data, distance_matrix(data, cfg.distances))
 
 
-def solve_scenario(scenario: LoadedScenario, progress: Progress = _quiet) -> Solution:
-    """Solve a loaded scenario and return the priced plan."""
+def solve_scenario(
+    scenario: LoadedScenario,
+    progress: Progress = _quiet,
+    *,
+    start_hubs: Sequence[str] | None = None,
+) -> Solution:
+    """Solve a loaded scenario and return the priced plan.
+
+    ``start_hubs`` (site ids, for example an earlier run's hubs) replaces
+    the local-search starting plan given to the solver as its MIP start.
+    """
     cfg = scenario.config
     return solve_network(
         scenario.data,
@@ -66,38 +75,53 @@ def solve_scenario(scenario: LoadedScenario, progress: Progress = _quiet) -> Sol
         cfg.solver,
         scenario=cfg.name,
         progress=progress,
+        start_hubs=start_hubs,
     )
 
 
 def run_scenario(
-    config: str | Path | ScenarioConfig,
+    config: str | Path | ScenarioConfig | LoadedScenario,
     out_dir: str | Path,
     *,
     force: bool = False,
     overrides: Mapping[str, Any] | None = None,
     progress: Progress = _quiet,
+    start_hubs: Sequence[str] | None = None,
+    extra_files: Mapping[str, bytes | str] | None = None,
 ) -> tuple[Solution, Path]:
     """Load, solve and write a run folder atomically.
 
     The output folder is checked before any solving, so an existing folder
-    is reported at once; it is never overwritten without ``force``.
+    is reported at once; it is never overwritten without ``force``. Besides
+    the summary and the CSV tables, the folder gets ``sites.csv``,
+    ``map.html`` and ``tables.xlsx`` (:mod:`hubnet.report.runfiles`).
+
+    ``config`` may be a scenario already loaded (and edited) with
+    :func:`load_scenario`; ``start_hubs`` is passed to :func:`solve_scenario`;
+    ``extra_files`` are added to the run folder (by relative name).
 
     Returns
     -------
     tuple
         The solution and the run folder written.
     """
+    from hubnet.report.runfiles import extra_run_files
     from hubnet.report.summary import summary_dict
     from hubnet.runfolder import preflight, write_run
 
     out = Path(out_dir)
     preflight(out, force)
-    scenario = load_scenario(config, overrides)
-    sol = solve_scenario(scenario, progress)
+    if isinstance(config, LoadedScenario):
+        scenario = config
+    else:
+        scenario = load_scenario(config, overrides)
+    sol = solve_scenario(scenario, progress, start_hubs=start_hubs)
     cfg = scenario.config
     text = cfg.source.read_text(encoding="utf-8") if cfg.source is not None else None
-    extra = {"solver.log": sol.stats.log} if sol.stats.log else None
-    path = write_run(
-        out, sol, force=force, config_text=text, summary=summary_dict(sol, cfg), extra_files=extra
-    )
+    summary = summary_dict(sol, cfg)
+    extra: dict[str, bytes | str] = {"solver.log": sol.stats.log} if sol.stats.log else {}
+    progress("drawing map.html and writing tables.xlsx")
+    extra.update(extra_run_files(sol, scenario.data, summary, folder=out))
+    extra.update(extra_files or {})
+    path = write_run(out, sol, force=force, config_text=text, summary=summary, extra_files=extra)
     return sol, path

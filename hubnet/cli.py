@@ -16,6 +16,17 @@ from typing import Annotated
 import typer
 from rich.console import Console
 
+from hubnet.cli_report import map_command, report_command
+from hubnet.cli_sweep import (
+    HistoryOption,
+    LogFileOption,
+    LogFormatOption,
+    WarmStartOption,
+    compare_command,
+    runs_command,
+    solve_job,
+    sweep_command,
+)
 from hubnet.errors import EXIT_BAD_INPUT, EXIT_ERROR, EXIT_OK, HubnetError
 
 app = typer.Typer(
@@ -59,7 +70,7 @@ def solve(
         int | None, typer.Option("--hubs", help="Override model.hubs (number of hubs).")
     ] = None,
     solver: Annotated[
-        str | None, typer.Option("--solver", help="Override solver.name: highs or cbc.")
+        str | None, typer.Option("--solver", help="Override solver.name: auto, highs or cbc.")
     ] = None,
     time_limit: Annotated[
         float | None, typer.Option("--time-limit", help="Override solver.time_limit_s (s).")
@@ -70,14 +81,20 @@ def solve(
     threads: Annotated[
         int | None, typer.Option("--threads", help="Override solver.threads.")
     ] = None,
+    log_file: LogFileOption = None,
+    log_format: LogFormatOption = "plain",
+    warm_start: WarmStartOption = None,
+    history: HistoryOption = None,
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="Print only errors.")] = False,
     verbose: Annotated[
         bool, typer.Option("--verbose", "-v", help="Show tracebacks and the solver log.")
     ] = False,
 ) -> None:
-    """Solve a scenario and write its run folder (summary.json and tables)."""
-    from hubnet.api import run_scenario
+    """Solve a scenario and write its run folder (summary.json and tables).
 
+    The run folder is locked while the run writes it, and the run is
+    recorded in the run history (see hubnet runs).
+    """
     overrides: dict[str, dict[str, object]] = {}
     if hubs is not None:
         overrides.setdefault("model", {})["hubs"] = hubs
@@ -93,7 +110,17 @@ def solve(
         overrides.setdefault("solver", {})["log"] = True
     say = _progress(quiet)
     try:
-        sol, path = run_scenario(config, out, force=force, overrides=overrides, progress=say)
+        sol, path = solve_job(
+            config,
+            out,
+            force=force,
+            overrides=overrides,
+            say=say,
+            log_file=log_file,
+            log_format=log_format,
+            warm_start=warm_start,
+            history=history,
+        )
     except HubnetError as err:
         _fail(err, verbose)
         return
@@ -130,6 +157,13 @@ def check(
         f"ok: {data.n} sites ({cand} candidate hubs), {len(data.demand)} OD pairs, "
         f"{total:,.1f} {data.volume_unit} per day; distances: {sc.distances.source}"
     )
+
+
+app.command("map")(map_command)
+app.command("report")(report_command)
+app.command("sweep")(sweep_command)
+app.command("runs")(runs_command)
+app.command("compare")(compare_command)
 
 
 def main() -> None:
