@@ -7,6 +7,7 @@ test with a clear reason when the folder is absent.
 from __future__ import annotations
 
 import csv
+import re
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -67,7 +68,9 @@ def published_rows() -> list[PublishedRow]:
                     problem=r["problem"].strip(),
                     objective=float(text),
                     decimals=decimals,
-                    hubs=tuple(r["hubs"].split()),
+                    # Hub ids are the leading integers; a note may follow
+                    # them, e.g. "43 159 (APdata200 node order)".
+                    hubs=tuple(re.match(r"[\d\s]*", r["hubs"]).group(0).split()),  # type: ignore[union-attr]
                     best_known_only="BEST KNOWN" in source.upper()
                     or "UNREVIEWED" in source.upper(),
                 )
