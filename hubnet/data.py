@@ -55,6 +55,9 @@ class Site:
     hub_status
         ``candidate`` (the model decides), ``open`` (forced open) or
         ``closed`` (forced closed).
+    region
+        Optional region name (a sales area, a country), used to scale
+        demand by region in scenarios; empty when not given.
     """
 
     id: str
@@ -68,6 +71,7 @@ class Site:
     handling_cost: float = 0.0
     sort_capacity: float | None = None
     hub_status: HubStatus = "candidate"
+    region: str = ""
 
     @property
     def is_candidate(self) -> bool:

@@ -44,6 +44,8 @@ column              unit           meaning
 ``sort_capacity``   units/day      > 0; empty means unlimited
 ``hub_status``      --             ``candidate`` (default), ``open`` (forced
                                    open) or ``closed`` (forced closed)
+``region``          --             optional region name, for scaling demand
+                                   by region in scenario sweeps
 ==================  =============  ===========================================
 
 Every site needs coordinates of the same kind: lat/lon or x/y. When a GIS
@@ -654,6 +656,7 @@ def _schema(columns: Sequence[_Column]) -> pa.DataFrameSchema:
 _SITE_COLUMNS = (
     _Column("id", "text", "a site id", required=True, filled=True),
     _Column("name", "text", "a name"),
+    _Column("region", "text", "a region name"),
     _Column(
         "lat",
         "number",
@@ -983,6 +986,7 @@ def _sites(table: _Table, opts: _Options, problems: _Problems) -> _SiteResult:
 
     site_ids: list[str] = result.ids  # no empty ids: checked above
     names: list[str | None] = p.text["name"].tolist() if p.has("name") else [None] * n
+    regions: list[str | None] = p.text["region"].tolist() if p.has("region") else [None] * n
     lat, lon, x, y = floats("lat"), floats("lon"), floats("x"), floats("y")
     fixed, handling = floats("hub_fixed_cost"), floats("handling_cost")
     capacity = floats("sort_capacity")
@@ -1000,6 +1004,7 @@ def _sites(table: _Table, opts: _Options, problems: _Problems) -> _SiteResult:
             handling_cost=handling[i] or 0.0,
             sort_capacity=capacity[i],
             hub_status=statuses[i],
+            region=regions[i] or "",
         )
         for i in range(n)
     ]

@@ -122,6 +122,10 @@ class DataEdits(_Strict):
         Factor per site id on the volume it sends, or receives.
     demand_scale_by_pair
         Factor per OD pair written ``"ORIGIN>DESTINATION"``.
+    demand_scale_by_region
+        Factor per region (the sites file's ``region`` column) on the volume
+        its sites send and receive; a pair within one region gets the factor
+        once, a pair between two listed regions gets both.
     transport_cost_scale
         Factor on ``model.cost_per_unit_km`` (fuel price, driver wages).
     hub_fixed_cost_scale, handling_cost_scale, sort_capacity_scale
@@ -145,6 +149,7 @@ class DataEdits(_Strict):
     demand_scale_by_origin: dict[str, float] = Field(default_factory=dict)
     demand_scale_by_destination: dict[str, float] = Field(default_factory=dict)
     demand_scale_by_pair: dict[str, float] = Field(default_factory=dict)
+    demand_scale_by_region: dict[str, float] = Field(default_factory=dict)
     transport_cost_scale: float | None = Field(default=None, gt=0)
     hub_fixed_cost_scale: float | None = Field(default=None, ge=0)
     handling_cost_scale: float | None = Field(default=None, ge=0)
@@ -215,6 +220,7 @@ def parse_edits(
         "demand_scale_by_origin",
         "demand_scale_by_destination",
         "demand_scale_by_pair",
+        "demand_scale_by_region",
         "hub_fixed_cost",
         "handling_cost",
     ):
@@ -347,9 +353,23 @@ def apply_data_edits(
                 f"{text!r}: there is no demand from {origin} to {destination}",
             )
         pairs[(origin, destination)] = factor
+    region_of = {site.id: site.region for site in data.sites}
+    known_regions = sorted({r for r in region_of.values() if r})
+    for name in edits.demand_scale_by_region:
+        if name not in known_regions:
+            where = (
+                f"{_hint(name, known_regions)}"
+                if known_regions
+                else "; the sites file has no region column"
+            )
+            bad("demand_scale_by_region", f"unknown region {name!r}{where}")
     demand = []
     for d in data.demand:
         f = edits.demand_scale if edits.demand_scale is not None else 1.0
+        r_from, r_to = region_of.get(d.origin, ""), region_of.get(d.destination, "")
+        f *= edits.demand_scale_by_region.get(r_from, 1.0) if r_from else 1.0
+        if r_to and r_to != r_from:
+            f *= edits.demand_scale_by_region.get(r_to, 1.0)
         f *= edits.demand_scale_by_site.get(d.origin, 1.0)
         f *= edits.demand_scale_by_site.get(d.destination, 1.0)
         f *= edits.demand_scale_by_origin.get(d.origin, 1.0)

@@ -80,6 +80,39 @@ def test_demand_factors_multiply() -> None:
     assert [d.volume for d in small_net().demand] == [10.0, 4.0, 2.0, 6.0]
 
 
+def test_demand_scaled_by_region() -> None:
+    # Regions: A and B in "north", C in "south".
+    # A>B (north>north): factor once, 1.5 -> 15; B>A: 1.5 -> 6
+    # A>C (north>south): 1.5 x 0.8 = 1.2 -> 2.4; C>B (south>north): 1.2 -> 7.2
+    import dataclasses
+
+    net = small_net()
+    regions = {"A": "north", "B": "north", "C": "south"}
+    net = dataclasses.replace(
+        net, sites=tuple(dataclasses.replace(s, region=regions[s.id]) for s in net.sites)
+    )
+    edits = DataEdits(demand_scale_by_region={"north": 1.5, "south": 0.8})
+    out = apply_data_edits(net, edits)
+    assert [round(d.volume, 9) for d in out.demand] == [15.0, 6.0, 2.4, 7.2]
+    with pytest.raises(InputError, match=r"unknown region 'nort'; did you mean 'north'\?"):
+        apply_data_edits(net, DataEdits(demand_scale_by_region={"nort": 1.1}))
+    with pytest.raises(InputError, match="the sites file has no region column"):
+        apply_data_edits(small_net(), DataEdits(demand_scale_by_region={"north": 1.1}))
+
+
+def test_region_column_is_read(tmp_path: Path) -> None:
+    import pandas as pd
+
+    from hubnet.inputs import network_from_frames
+
+    sites = pd.DataFrame(
+        {"id": ["A", "B"], "x": [0.0, 1.0], "y": [0.0, 0.0], "region": ["north", "south"]}
+    )
+    demand = pd.DataFrame({"origin": ["A"], "destination": ["B"], "volume": [3.0]})
+    net = network_from_frames(sites, demand)
+    assert [s.region for s in net.sites] == ["north", "south"]
+
+
 def test_site_edits() -> None:
     edits = DataEdits(
         hub_fixed_cost_scale=0.5,
