@@ -14,8 +14,8 @@ from pathlib import Path
 from typing import Annotated
 
 import typer
-from rich.console import Console
 
+from hubnet.cli_common import err_console, fail
 from hubnet.cli_report import map_command, report_command
 from hubnet.cli_sweep import (
     HistoryOption,
@@ -27,7 +27,7 @@ from hubnet.cli_sweep import (
     solve_job,
     sweep_command,
 )
-from hubnet.errors import EXIT_BAD_INPUT, EXIT_ERROR, EXIT_OK, HubnetError
+from hubnet.errors import EXIT_BAD_INPUT, EXIT_OK, HubnetError
 
 app = typer.Typer(
     add_completion=False,
@@ -36,7 +36,8 @@ app = typer.Typer(
 )
 # soft_wrap: never break a line at the terminal width, so every problem stays on
 # one line (file, row, column, message) for grep and for a scheduler's log.
-_err = Console(stderr=True, highlight=False, soft_wrap=True)
+_err = err_console
+_fail = fail
 
 
 def _progress(quiet: bool) -> Callable[[str], None]:
@@ -47,14 +48,6 @@ def _progress(quiet: bool) -> Callable[[str], None]:
             _err.print(f"[dim]{time.perf_counter() - start:7.1f} s[/dim]  {message}")
 
     return say
-
-
-def _fail(err: BaseException, verbose: bool) -> None:
-    if verbose:
-        _err.print_exception()
-    code = err.exit_code if isinstance(err, HubnetError) else EXIT_ERROR
-    _err.print(f"[bold red]error:[/bold red] {err}", markup=True, highlight=False)
-    raise typer.Exit(code)
 
 
 @app.command()

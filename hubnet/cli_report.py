@@ -11,11 +11,12 @@ from pathlib import Path
 from typing import Annotated
 
 import typer
-from rich.console import Console
 
-from hubnet.errors import EXIT_BAD_INPUT, EXIT_ERROR, HubnetError
+from hubnet.cli_common import err_console, fail
+from hubnet.errors import EXIT_BAD_INPUT, HubnetError
 
-_err = Console(stderr=True, highlight=False, soft_wrap=True)
+_err = err_console
+_fail = fail
 
 _TILES_HELP = (
     "Base map under the network: light (a plain grey map), osm (OpenStreetMap's own "
@@ -32,14 +33,6 @@ def _check_tiles(tiles: str) -> str:
             f"expected one of {', '.join(TILES)}, got {tiles!r}", param_hint="--tiles"
         )
     return tiles
-
-
-def _fail(err: BaseException, verbose: bool) -> None:
-    if verbose:
-        _err.print_exception()
-    code = err.exit_code if isinstance(err, HubnetError) else EXIT_ERROR
-    _err.print(f"[bold red]error:[/bold red] {err}", markup=True, highlight=False)
-    raise typer.Exit(code)
 
 
 def map_command(

@@ -23,6 +23,7 @@ import typer
 from rich.console import Console
 from rich.table import Table
 
+from hubnet.cli_common import err_console, fail
 from hubnet.errors import EXIT_ERROR, HubnetError
 
 if TYPE_CHECKING:
@@ -30,7 +31,8 @@ if TYPE_CHECKING:
     from hubnet.solution import Solution
     from hubnet.sweep import SweepReport, SweepState
 
-_err = Console(stderr=True, highlight=False, soft_wrap=True)
+_err = err_console
+_fail = fail
 _out = Console(highlight=False, soft_wrap=True)
 if not _out.is_terminal:  # a pipe or a log: wide tables rather than wrapped cells
     _out = Console(highlight=False, soft_wrap=True, width=200)
@@ -63,14 +65,6 @@ WarmStartOption = Annotated[
 ]
 #: ``--history`` of solve, sweep, runs and compare.
 HistoryOption = Annotated[str | None, typer.Option("--history", help=_HISTORY_HELP)]
-
-
-def _fail(err: BaseException, verbose: bool) -> None:
-    if verbose:
-        _err.print_exception()
-    code = err.exit_code if isinstance(err, HubnetError) else EXIT_ERROR
-    _err.print(f"[bold red]error:[/bold red] {err}", markup=True, highlight=False)
-    raise typer.Exit(code)
 
 
 # --------------------------------------------------------------------------
