@@ -44,8 +44,12 @@ neither the optimum nor the LP bound.
 
 from __future__ import annotations
 
+import multiprocessing
+import os
+import signal
 import time
 from dataclasses import dataclass
+from multiprocessing.connection import Connection
 
 import numpy as np
 import pulp
@@ -101,6 +105,8 @@ class BaselineResult:
     bound: float | None
     seconds: float
     variables: int
+    killed: bool = False
+    message: str = ""
 
 
 def variable_count(inst: Instance, allocation: str) -> int:
@@ -301,3 +307,105 @@ def solve_baseline(
     if status == "optimal" and bound is None:
         bound = objective
     return BaselineResult(name, status, objective, bound, seconds, count)
+
+
+def _child(conn: Connection, args: tuple[object, ...]) -> None:
+    """Run :func:`solve_baseline` in its own process group and send the result back."""
+    os.setsid()
+    null = os.open(os.devnull, os.O_WRONLY)
+    os.dup2(null, 1)  # the solvers' banners would interleave with the table
+    try:
+        conn.send(solve_baseline(*args))  # type: ignore[arg-type]
+    except Exception as exc:  # reported to the parent as an error result
+        conn.send(f"{type(exc).__name__}: {exc}")
+    finally:
+        conn.close()
+
+
+def solve_baseline_bounded(
+    inst: Instance,
+    allocation: str,
+    solver: str = "highs",
+    time_limit: float = 600.0,
+    gap: float = 1e-6,
+    max_variables: int = MAX_VARIABLES,
+    variant: str = "campbell",
+    grace: float = 60.0,
+) -> BaselineResult:
+    """:func:`solve_baseline` in a child process, killed if it outlives the limit.
+
+    CBC does not look at its time limit while it solves the root LP, which
+    on the larger path models can take far longer than the limit; HiGHS may
+    overrun in presolve. The run therefore goes to a fresh process (its own
+    process group, so a CBC subprocess goes with it) that is killed
+    ``grace`` seconds after ``time_limit``. A killed run is reported as
+    ``time_limit`` with ``killed=True`` and its wall time at the kill.
+    """
+    name = baseline_name(allocation, variant)
+    count = variable_count(inst, allocation)
+    if count > max_variables:
+        return BaselineResult(name, "skipped", None, None, 0.0, count)
+    ctx = multiprocessing.get_context("spawn")
+    recv, send = ctx.Pipe(duplex=False)
+    args = (inst, allocation, solver, time_limit, gap, max_variables, variant)
+    proc = ctx.Process(target=_child, args=(send, args))
+    start = time.perf_counter()
+    proc.start()
+    send.close()
+    try:
+        return _wait(proc, recv, name, count, start, time_limit, grace)
+    finally:
+        if proc.is_alive():  # interrupted (Ctrl-C, SIGTERM): take the solver down too
+            _kill(proc)
+
+
+def _kill(proc: multiprocessing.process.BaseProcess) -> None:
+    assert proc.pid is not None
+    try:
+        os.killpg(proc.pid, signal.SIGKILL)
+    except ProcessLookupError:
+        proc.kill()
+    proc.join()
+
+
+def _wait(
+    proc: multiprocessing.process.BaseProcess,
+    recv: Connection,
+    name: str,
+    count: int,
+    start: float,
+    time_limit: float,
+    grace: float,
+) -> BaselineResult:
+    try:
+        if recv.poll(time_limit + grace):
+            got = recv.recv()
+            proc.join()
+            if isinstance(got, BaselineResult):
+                return got
+            return BaselineResult(
+                name, "error", None, None, time.perf_counter() - start, count, message=str(got)
+            )
+    except EOFError:
+        proc.join()
+        return BaselineResult(
+            name,
+            "error",
+            None,
+            None,
+            time.perf_counter() - start,
+            count,
+            message=f"baseline process ended with code {proc.exitcode}",
+        )
+    seconds = time.perf_counter() - start
+    _kill(proc)
+    return BaselineResult(
+        name,
+        "time_limit",
+        None,
+        None,
+        seconds,
+        count,
+        killed=True,
+        message=f"killed {grace:g} s after the time limit",
+    )

@@ -27,6 +27,7 @@ import hashlib
 import os
 import platform
 import re
+import signal
 import statistics
 import subprocess
 import sys
@@ -45,7 +46,7 @@ sys.path.insert(0, str(REPO / "tests"))
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 import benchdata  # noqa: E402
-from baseline import Instance, baseline_name, solve_baseline  # noqa: E402
+from baseline import Instance, baseline_name, solve_baseline_bounded  # noqa: E402
 
 from hubnet.classic import read_ap_format  # noqa: E402
 from hubnet.config import DistanceParams, HubModelParams, SolverName, SolverParams  # noqa: E402
@@ -325,8 +326,7 @@ def run_case(case: Case, args: argparse.Namespace, published: dict) -> Outcome:
         out.base_formulation = earlier.get("baseline_formulation", "")
     elif args.baseline:
         out.base_solver = pick_solver(cast(SolverName, args.solver), case.allocation)
-        pin_highs_to_one_thread()
-        res = solve_baseline(
+        res = solve_baseline_bounded(
             baseline_instance(data, d, params),
             case.allocation,
             solver=out.base_solver,
@@ -338,6 +338,8 @@ def run_case(case: Case, args: argparse.Namespace, published: dict) -> Outcome:
         out.base_objective = res.objective
         out.base_variables = res.variables
         out.base_formulation = res.formulation
+        if res.message:
+            out.notes.append(f"baseline: {res.message}")
     if case.dataset == "AP":
         key = case.setting if case.problem == "CSAHLP" else str(case.p)
         compare_published(out, published.get((case.problem, case.n, key)))
@@ -623,18 +625,23 @@ def parse_args(argv: list[str] | None = None) -> argparse.Namespace:
     ap.add_argument(
         "--baseline-csv",
         type=Path,
-        default=None,
+        action="append",
+        default=[],
         help="reuse the baseline figures of an earlier run's CSV instead of re-solving them "
-        "(same machine and solver); instances missing there are solved",
+        "(same machine and solver; may be repeated); instances missing there are solved",
     )
     args = ap.parse_args(argv)
-    args.earlier_baselines = load_baselines(args.baseline_csv) if args.baseline_csv else {}
+    args.earlier_baselines = {}
+    for path in args.baseline_csv:
+        args.earlier_baselines.update(load_baselines(path))
     return args
 
 
 def main(argv: list[str] | None = None) -> int:
     """Run the selected instances and print the table and the summary."""
     args = parse_args(argv)
+    # Let SIGTERM unwind like Ctrl-C, so a running baseline process is killed with us.
+    signal.signal(signal.SIGTERM, lambda *_: sys.exit(143))
     if not (benchdata.BENCH / "published_optima.csv").is_file():
         print(f"benchmark data not found at {benchdata.BENCH}", file=sys.stderr)
         return 2
@@ -648,9 +655,9 @@ def main(argv: list[str] | None = None) -> int:
         flush=True,
     )
     print(f"# {code_version()}", flush=True)
-    if args.baseline_csv is not None:
+    if args.baseline_csv:
         print(
-            f"# baseline figures reused from {args.baseline_csv} "
+            f"# baseline figures reused from {', '.join(map(str, args.baseline_csv))} "
             f"({len(args.earlier_baselines)} instances; marked *)",
             flush=True,
         )
