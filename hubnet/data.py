@@ -20,6 +20,7 @@ from typing import Literal
 import numpy as np
 
 from hubnet.errors import InputError, Problem
+from hubnet.fleet import VehicleClass
 from hubnet.units import VOLUME_UNITS
 
 HubStatus = Literal["candidate", "open", "closed"]
@@ -58,6 +59,15 @@ class Site:
     region
         Optional region name (a sales area, a country), used to scale
         demand by region in scenarios; empty when not given.
+    sort_hours
+        Hours a unit spends in this hub's sort (freight model); ``None``
+        takes the scenario's default.
+    cutoff_h
+        Collection cut-off, hour of the day (0-24) when freight leaves this
+        terminal (freight model); ``None`` takes the scenario's default.
+    deliver_by_h
+        Delivery deadline at this terminal, hour of the day (0-24);
+        ``None`` takes the scenario's default.
     """
 
     id: str
@@ -72,6 +82,9 @@ class Site:
     sort_capacity: float | None = None
     hub_status: HubStatus = "candidate"
     region: str = ""
+    sort_hours: float | None = None
+    cutoff_h: float | None = None
+    deliver_by_h: float | None = None
 
     @property
     def is_candidate(self) -> bool:
@@ -81,11 +94,16 @@ class Site:
 
 @dataclass(frozen=True, slots=True)
 class Demand:
-    """Daily volume from one site to another (one OD pair), in the volume unit."""
+    """Daily volume from one site to another (one OD pair), in the volume unit.
+
+    ``max_hours`` optionally overrides the pair's transit allowance (hours
+    from the origin's cut-off to delivery) in the freight model.
+    """
 
     origin: str
     destination: str
     volume: float
+    max_hours: float | None = None
 
 
 @dataclass(frozen=True, eq=False)
@@ -129,6 +147,9 @@ class NetworkData:
         Whether volume from a site to itself is allowed; it is then routed
         through the site's hub like any other flow (as in postal benchmark
         data where intra-district mail is sorted at the hub).
+    vehicles
+        Vehicle classes; when given, the freight model plans vehicles on
+        every leg instead of the classic per-unit costs.
     """
 
     sites: tuple[Site, ...]
@@ -137,6 +158,7 @@ class NetworkData:
     coordinates: CoordinateSystem = "geographic"
     distances: DistanceMatrix | None = None
     allow_same_site_demand: bool = False
+    vehicles: tuple[VehicleClass, ...] = ()
     _index: Mapping[str, int] = field(init=False, repr=False)
 
     def __post_init__(self) -> None:
@@ -178,6 +200,17 @@ class NetworkData:
             if key in seen:
                 problems.append(Problem("demand", None, None, f"duplicate OD pair {key}"))
             seen.add(key)
+        vehicle_ids: set[str] = set()
+        for v in self.vehicles:
+            if v.id in vehicle_ids:
+                problems.append(Problem("vehicles", None, "id", f"duplicate vehicle id {v.id!r}"))
+            vehicle_ids.add(v.id)
+            if not v.payload > 0 or not v.speed_kmh > 0:
+                problems.append(
+                    Problem("vehicles", None, None, f"vehicle {v.id!r}: payload, speed must be > 0")
+                )
+            if not v.tiers:
+                problems.append(Problem("vehicles", None, "tiers", f"vehicle {v.id!r}: no tier"))
         if self.distances is not None:
             n = len(self.sites)
             if self.distances.km.shape != (n, n):

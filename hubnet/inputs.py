@@ -24,8 +24,8 @@ empty: text such as ``NA`` or ``nan`` in a numeric column is an error.
 
 In a workbook or GeoPackage holding several sheets or layers, the one named
 by ``inputs.sheet`` in the config is read; without it, the sheet named after
-the table (``sites``, ``demand``, ``distances``) is read, so one workbook can
-hold all three. A single-sheet file is read whole.
+the table (``sites``, ``demand``, ``distances``, ``vehicles``) is read, so
+one workbook can hold them all. A single-sheet file is read whole.
 
 **Sites** (one row per terminal or candidate hub)
 
@@ -46,6 +46,15 @@ column              unit           meaning
                                    open) or ``closed`` (forced closed)
 ``region``          --             optional region name, for scaling demand
                                    by region in scenario sweeps
+``sort_hours``      hours          freight model: time a unit spends in this
+                                   hub's sort, >= 0; empty: ``service``
+                                   default
+``cutoff``          HH:MM          freight model: time of day (00:00 to
+                                   24:00) the terminal's freight leaves;
+                                   empty: ``service`` default
+``deliver_by``      HH:MM          freight model: time of day freight must
+                                   reach this terminal; empty: ``service``
+                                   default
 ==================  =============  ===========================================
 
 Every site needs coordinates of the same kind: lat/lon or x/y. When a GIS
@@ -56,13 +65,42 @@ to be in WGS84 already.
 **Demand** (one row per OD pair): ``origin`` and ``destination`` (site ids)
 and ``volume`` (units/day in the scenario's volume unit, finite, >= 0). Each
 OD pair appears once; volume from a site to itself needs
-``inputs.allow_same_site_demand = true``.
+``inputs.allow_same_site_demand = true``. Optional ``max_hours`` (hours,
+> 0) overrides the pair's transit allowance in the freight model.
 
 **Distances** (optional, long form, from the user's own routing engine):
 ``origin``, ``destination``, ``distance_km`` (km, >= 0) and optional
 ``hours`` (drive time in hours, > 0 between two different sites). Every
 ordered pair of distinct sites needs a row; rows from a site to itself are
 allowed and ignored (the diagonal is 0).
+
+**Vehicles** (optional, ``inputs.vehicles``; switches on the freight
+model), one row per vehicle class:
+
+========================  ==============  =====================================
+column                    unit            meaning
+========================  ==============  =====================================
+``id``                    --              required, unique, non-empty
+``name``                  --              display name; default: the id
+``payload``               units/vehicle   required, > 0, in the volume unit
+``max_kg``, ``max_m3``    kg, m3          optional limits, > 0, used with
+                                          ``inputs.kg_per_unit`` /
+                                          ``inputs.m3_per_unit``
+``cost_per_km``           currency/km     required, >= 0 per vehicle-km
+``cost_per_hour``         currency/h      >= 0; default 0
+``cost_per_dispatch``     currency        >= 0; default 0
+``speed_kmh``             km/h            required, > 0 and <= 150
+``tiers``                 --              required: any of ``feeder``,
+                                          ``trunk``, ``direct``, separated by
+                                          spaces, commas, ``;`` or ``|``
+``fuel_l_per_100km``      L/100 km        >= 0; default 0
+``fuel``                  --              default ``diesel``; a fuel of the
+                                          emission factor table
+                                          (:func:`hubnet.emissions.load_fuels`)
+========================  ==============  =====================================
+
+At least one class must be allowed on feeder legs and one on trunk legs; a
+class on direct legs is optional (without one, no direct lane is offered).
 
 Other columns (a planner's own notes, codes, ...) are allowed and ignored.
 An unknown column whose name is close to an optional column that is absent
@@ -73,6 +111,7 @@ would otherwise be silently lost.
 from __future__ import annotations
 
 import difflib
+import math
 import os
 import re
 import sys
@@ -88,13 +127,16 @@ import pandas as pd
 import pandera.pandas as pa
 from pandera.errors import SchemaErrors
 
-from hubnet.config import DistanceMethod, ScenarioConfig, key_line
+from hubnet.config import CLOCK_EXPECT, DistanceMethod, ScenarioConfig, clock_hours, key_line
 from hubnet.data import CoordinateSystem, Demand, DistanceMatrix, HubStatus, NetworkData, Site
 from hubnet.errors import InputError, Problem
+from hubnet.fleet import TIERS, Tier, VehicleClass
 from hubnet.units import VOLUME_UNITS
 
 __all__ = [
+    "DEFAULT_FUEL",
     "MAX_PROBLEMS_PER_COLUMN",
+    "MAX_SPEED_KMH",
     "InputWarning",
     "load_network",
     "network_from_frames",
@@ -110,6 +152,16 @@ MAX_MISSING_PAIRS_SHOWN = 10
 
 #: Coordinate reference system of site latitudes and longitudes.
 WGS84_CRS = "EPSG:4326"
+
+#: Highest average road speed of a vehicle class, km/h: a larger value is
+#: taken for a typing error (a limit of the file format, not of the law).
+MAX_SPEED_KMH = 150.0
+
+#: Fuel of a vehicle class whose ``fuel`` cell is empty.
+DEFAULT_FUEL = "diesel"
+
+#: What separates the tiers in a ``tiers`` cell ("feeder trunk", "feeder;direct").
+_TIER_SEPARATORS = re.compile(r"[\s,;|]+")
 
 _CSV_SUFFIXES = frozenset({".csv", ".txt", ".tsv"})
 _EXCEL_SUFFIXES = frozenset({".xlsx", ".xlsm"})
@@ -612,6 +664,40 @@ def _above(low: float, expect: str) -> pa.Check:
 _FINITE = pa.Check(lambda s: np.isfinite(s), error="expected a finite number")
 
 
+def _is_clock(value: Any) -> bool:
+    """True for an empty cell or a time of day ``HH:MM`` (see :func:`clock_hours`)."""
+    if value is None:
+        return True
+    try:
+        clock_hours(str(value))
+    except ValueError:
+        return False
+    return True
+
+
+_CLOCK_CHECK = pa.Check(lambda s: s.map(_is_clock).astype(bool), error=f"expected {CLOCK_EXPECT}")
+_SPEED_EXPECT = f"a speed in km/h above 0 and at most {MAX_SPEED_KMH:g}"
+_SPEED_CHECK = pa.Check(
+    lambda s: ~np.isfinite(s) | ((s > 0) & (s <= MAX_SPEED_KMH)), error=f"expected {_SPEED_EXPECT}"
+)
+_TIERS_EXPECT = f"one or more of {', '.join(TIERS)}, separated by spaces, commas, semicolons or '|'"
+
+
+def _number(
+    name: str,
+    expect: str,
+    low: float,
+    *,
+    strict: bool = False,
+    required: bool = False,
+) -> _Column:
+    """A finite number column: ``>= low``, or ``> low`` when ``strict``."""
+    bound = _above(low, expect) if strict else _at_least(low, expect)
+    return _Column(
+        name, "number", expect, required=required, filled=required, checks=(bound, _FINITE)
+    )
+
+
 @dataclass(frozen=True)
 class _Column:
     """How one column is read and checked.
@@ -705,6 +791,9 @@ _SITE_COLUMNS = (
         "candidate, open or closed",
         checks=(pa.Check.isin(_HUB_STATUSES, error="expected candidate, open or closed"),),
     ),
+    _number("sort_hours", "hours >= 0, or an empty cell for the scenario's default", 0),
+    _Column("cutoff", "text", CLOCK_EXPECT, checks=(_CLOCK_CHECK,)),
+    _Column("deliver_by", "text", CLOCK_EXPECT, checks=(_CLOCK_CHECK,)),
 )
 
 _DEMAND_COLUMNS = (
@@ -717,6 +806,9 @@ _DEMAND_COLUMNS = (
         required=True,
         filled=True,
         checks=(_at_least(0, "a number >= 0"), _FINITE),
+    ),
+    _number(
+        "max_hours", "a transit allowance in hours > 0, or an empty cell for none", 0, strict=True
     ),
 )
 
@@ -739,11 +831,34 @@ _DISTANCE_COLUMNS = (
     ),
 )
 
-_TableKind = Literal["sites", "demand", "distances"]
+_VEHICLE_COLUMNS = (
+    _Column("id", "text", "a vehicle class id", required=True, filled=True),
+    _Column("name", "text", "a name"),
+    _number("payload", "a payload > 0 (volume units per vehicle)", 0, strict=True, required=True),
+    _number("max_kg", "a weight limit in kg > 0, or an empty cell for none", 0, strict=True),
+    _number("max_m3", "a cubic limit in m3 > 0, or an empty cell for none", 0, strict=True),
+    _number("cost_per_km", "a cost per vehicle-km >= 0", 0, required=True),
+    _number("cost_per_hour", "a cost per hour >= 0", 0),
+    _number("cost_per_dispatch", "a cost per dispatch >= 0", 0),
+    _Column(
+        "speed_kmh",
+        "number",
+        _SPEED_EXPECT,
+        required=True,
+        filled=True,
+        checks=(_SPEED_CHECK, _FINITE),
+    ),
+    _Column("tiers", "choice", _TIERS_EXPECT, required=True, filled=True),
+    _number("fuel_l_per_100km", "litres per 100 km >= 0", 0),
+    _Column("fuel", "choice", "a fuel name"),
+)
+
+_TableKind = Literal["sites", "demand", "distances", "vehicles"]
 _SPECS: dict[_TableKind, tuple[_Column, ...]] = {
     "sites": _SITE_COLUMNS,
     "demand": _DEMAND_COLUMNS,
     "distances": _DISTANCE_COLUMNS,
+    "vehicles": _VEHICLE_COLUMNS,
 }
 _SCHEMAS = {kind: _schema(spec) for kind, spec in _SPECS.items()}
 
@@ -989,7 +1104,8 @@ def _sites(table: _Table, opts: _Options, problems: _Problems) -> _SiteResult:
     regions: list[str | None] = p.text["region"].tolist() if p.has("region") else [None] * n
     lat, lon, x, y = floats("lat"), floats("lon"), floats("x"), floats("y")
     fixed, handling = floats("hub_fixed_cost"), floats("handling_cost")
-    capacity = floats("sort_capacity")
+    capacity, sort_hours = floats("sort_capacity"), floats("sort_hours")
+    cutoff, deliver_by = _clocks(p, "cutoff"), _clocks(p, "deliver_by")
     statuses = cast(list[HubStatus], status.tolist())
     result.sites = [
         Site(
@@ -1005,10 +1121,20 @@ def _sites(table: _Table, opts: _Options, problems: _Problems) -> _SiteResult:
             sort_capacity=capacity[i],
             hub_status=statuses[i],
             region=regions[i] or "",
+            sort_hours=sort_hours[i],
+            cutoff_h=cutoff[i],
+            deliver_by_h=deliver_by[i],
         )
         for i in range(n)
     ]
     return result
+
+
+def _clocks(p: _Parsed, name: str) -> list[float | None]:
+    """A checked time-of-day column as hours after midnight (None where empty)."""
+    if name not in p.text:
+        return [None] * len(p.table.frame)
+    return [None if v is None else clock_hours(v) for v in p.text[name].tolist()]
 
 
 def _coordinates(p: _Parsed, problems: _Problems) -> CoordinateSystem | None:
@@ -1161,12 +1287,15 @@ def _demand(
     _pair_checks(p, opts.allow_same_site_demand, "OD pair", problems)
     if problems.in_file(table.file) or p.missing:
         return None
+    n = len(table.frame)
+    max_hours = p.number["max_hours"].tolist() if "max_hours" in p.number else [math.nan] * n
     return [
-        Demand(o, d, v)
-        for o, d, v in zip(
+        Demand(o, d, v, None if math.isnan(h) else h)
+        for o, d, v, h in zip(
             p.text["origin"].tolist(),
             p.text["destination"].tolist(),
             p.number["volume"].tolist(),
+            max_hours,
             strict=True,
         )
     ]
@@ -1243,6 +1372,156 @@ def _distances(
 
 
 # --------------------------------------------------------------------------
+# Vehicle classes
+# --------------------------------------------------------------------------
+
+#: Tiers every network uses, with the legs they are (for messages); a class
+#: allowed on direct legs is optional (without one no direct lane is offered).
+_NEEDED_TIERS: tuple[tuple[Tier, str], ...] = (
+    ("feeder", "feeder legs (between a terminal and its hub)"),
+    ("trunk", "trunk legs (between two hubs)"),
+)
+
+
+def _known_fuels() -> tuple[str, ...]:
+    """Fuel names of the bundled emission factor table (:func:`hubnet.emissions.load_fuels`)."""
+    from hubnet.emissions import load_fuels
+
+    return tuple(load_fuels())
+
+
+def _split_tiers(text: str) -> list[str]:
+    """The words of a ``tiers`` cell ("feeder, trunk" -> ["feeder", "trunk"])."""
+    return [w for w in _TIER_SEPARATORS.split(text) if w]
+
+
+def _tier_problem(text: str) -> str | None:
+    """What is wrong with a ``tiers`` cell, or None."""
+    words = _split_tiers(text)
+    if not words:
+        return f"expected {_TIERS_EXPECT}, got {text!r}"
+    unknown = [w for w in words if w not in TIERS]
+    if not unknown:
+        return None
+    word = unknown[0]
+    more = f" (and {', '.join(repr(w) for w in unknown[1:])})" if len(unknown) > 1 else ""
+    return f"unknown tier {word!r}{more}; expected {_TIERS_EXPECT}{_did_you_mean(word, TIERS)}"
+
+
+def _vehicles(table: _Table, opts: _Options, problems: _Problems) -> list[VehicleClass] | None:
+    p = _parse(table, "vehicles", problems)
+    file, frame, rows = table.file, table.frame, table.rows
+    n = len(frame)
+    if n == 0:
+        problems.add(
+            file, None, None, "the file has no vehicle classes: expected one row per class"
+        )
+        return None
+    ids: list[str | None] = p.text["id"].tolist() if "id" in p.text else [None] * n
+    if "id" in p.text:
+        where, first = _duplicates(p.text["id"])
+        problems.add_rows(
+            table,
+            "id",
+            where,
+            lambda pos: (
+                f"duplicate vehicle class id {ids[pos]!r}; it is also on row "
+                f"{rows[first[ids[pos]]]}"
+            ),
+        )
+
+    tiers: list[frozenset[Tier]] = [frozenset()] * n
+    tiers_ok = "tiers" in p.text and p.ok("tiers")
+    if "tiers" in p.text:
+        cells: list[str | None] = p.text["tiers"].tolist()
+        wrong = {
+            pos: why
+            for pos, cell in enumerate(cells)
+            if cell is not None and (why := _tier_problem(cell)) is not None
+        }
+        problems.add_rows(
+            table, "tiers", np.array(sorted(wrong), dtype=np.int64), wrong.__getitem__
+        )
+        tiers_ok = tiers_ok and not wrong
+        tiers = [
+            frozenset(cast(list[Tier], _split_tiers(c))) if c is not None else frozenset()
+            for c in cells
+        ]
+    if tiers_ok:
+        for tier, legs in _NEEDED_TIERS:
+            if not any(tier in t for t in tiers):
+                problems.add(
+                    file,
+                    None,
+                    "tiers",
+                    f"no vehicle class may run on {legs}: add {tier!r} to the tiers "
+                    "of at least one class",
+                    summary=True,
+                )
+
+    fuels = opts.fuels
+    by_name = {f.casefold(): f for f in fuels}
+    fuel_cells: list[str | None] = p.text["fuel"].tolist() if "fuel" in p.text else [None] * n
+    unknown_fuel = np.array(
+        [f is not None and f.casefold() not in by_name for f in fuel_cells], dtype=bool
+    )
+    problems.add_rows(
+        table,
+        "fuel",
+        np.flatnonzero(unknown_fuel),
+        lambda pos: (
+            f"unknown fuel {fuel_cells[pos]!r}; the emission factor table has "
+            f"{', '.join(fuels)}{_did_you_mean(str(fuel_cells[pos]), fuels)}"
+        ),
+    )
+
+    if opts.check_unit_sizes:
+        for column, key in (("max_kg", "kg_per_unit"), ("max_m3", "m3_per_unit")):
+            given = p.has(column) and not p.empty[column].all()
+            if given and getattr(opts, key) is None:
+                warnings.warn(
+                    f"{file}: column {column} is not used: set inputs.{key} in the config "
+                    f"to apply the vehicles' {column} limits",
+                    InputWarning,
+                    stacklevel=4,
+                )
+
+    if problems.in_file(file) or p.missing:
+        return None
+
+    def floats(name: str) -> list[float | None]:
+        if name not in p.number:
+            return [None] * n
+        return [None if math.isnan(v) else v for v in p.number[name].tolist()]
+
+    names: list[str | None] = p.text["name"].tolist() if p.has("name") else [None] * n
+    payload, cost_km, speed = floats("payload"), floats("cost_per_km"), floats("speed_kmh")
+    cost_h, cost_dispatch = floats("cost_per_hour"), floats("cost_per_dispatch")
+    max_kg, max_m3, fuel_use = floats("max_kg"), floats("max_m3"), floats("fuel_l_per_100km")
+    out = []
+    for i in range(n):
+        class_id, fuel = ids[i], fuel_cells[i]
+        assert class_id is not None  # required, filled and checked above
+        out.append(
+            VehicleClass(
+                id=class_id,
+                name=names[i] or class_id,
+                payload=cast(float, payload[i]),
+                cost_per_km=cast(float, cost_km[i]),
+                speed_kmh=cast(float, speed[i]),
+                tiers=tiers[i],
+                cost_per_hour=cost_h[i] or 0.0,
+                cost_per_dispatch=cost_dispatch[i] or 0.0,
+                max_kg=max_kg[i],
+                max_m3=max_m3[i],
+                fuel_l_per_100km=fuel_use[i] or 0.0,
+                fuel=DEFAULT_FUEL if fuel is None else by_name[fuel.casefold()],
+            )
+        )
+    return out
+
+
+# --------------------------------------------------------------------------
 # Public entry points
 # --------------------------------------------------------------------------
 
@@ -1255,6 +1534,10 @@ class _Options:
     method: DistanceMethod | None = None
     distances_file: bool = False
     config_file: str = "config"
+    fuels: tuple[str, ...] = (DEFAULT_FUEL,)
+    kg_per_unit: float | None = None
+    m3_per_unit: float | None = None
+    check_unit_sizes: bool = False
 
 
 def _network(
@@ -1264,6 +1547,7 @@ def _network(
     opts: _Options,
     problems: _Problems,
     sites_label: str,
+    vehicles: _Table | None = None,
 ) -> NetworkData:
     """Validate the tables together and build the network, or raise."""
     if opts.volume_unit not in VOLUME_UNITS:
@@ -1277,12 +1561,14 @@ def _network(
     ids = site_result.ids if site_result is not None else None
     flows = _demand(demand, ids, sites_label, opts, problems) if demand is not None else None
     matrix = _distances(distances, ids, sites_label, problems) if distances is not None else None
+    classes = _vehicles(vehicles, opts, problems) if vehicles is not None else None
     if opts.method is not None and site_result is not None:
         _check_method(opts, site_result.coordinates, problems)
     if problems:
         raise InputError(problems.problems())
     assert site_result is not None and site_result.sites is not None and flows is not None
     assert distances is None or matrix is not None
+    assert vehicles is None or classes is not None
     return NetworkData(
         sites=tuple(site_result.sites),
         demand=tuple(flows),
@@ -1290,6 +1576,7 @@ def _network(
         coordinates=site_result.coordinates,
         distances=matrix,
         allow_same_site_demand=opts.allow_same_site_demand,
+        vehicles=tuple(classes or ()),
     )
 
 
@@ -1309,7 +1596,7 @@ def _check_method(opts: _Options, coordinates: CoordinateSystem, problems: _Prob
 
 
 def load_network(cfg: ScenarioConfig) -> NetworkData:
-    """Read and validate a scenario's sites, demand and optional distance matrix.
+    """Read and validate a scenario's sites, demand, optional distance matrix and vehicles.
 
     File formats, columns and their units are described in the module
     docstring (:mod:`hubnet.inputs`).
@@ -1325,8 +1612,9 @@ def load_network(cfg: ScenarioConfig) -> NetworkData:
     -------
     NetworkData
         Sites in file order, demand in file order (volumes in units/day of
-        ``cfg.inputs.volume_unit``), and the user's distance matrix (km,
-        hours) in site order when a distances file is given.
+        ``cfg.inputs.volume_unit``), the user's distance matrix (km,
+        hours) in site order when a distances file is given, and the
+        vehicle classes in file order when a vehicles file is given.
 
     Raises
     ------
@@ -1355,6 +1643,7 @@ def load_network(cfg: ScenarioConfig) -> NetworkData:
     sites = table(files.sites, "sites")
     demand = table(files.demand, "demand")
     distances = table(files.distances, "distances")
+    vehicles = table(files.vehicles, "vehicles")
     opts = _Options(
         volume_unit=files.volume_unit,
         allow_same_site_demand=files.allow_same_site_demand,
@@ -1362,9 +1651,13 @@ def load_network(cfg: ScenarioConfig) -> NetworkData:
         method=cfg.distances.method,
         distances_file=files.distances is not None,
         config_file=cfg.source.name if cfg.source is not None else "config",
+        fuels=_known_fuels() if files.vehicles is not None else (DEFAULT_FUEL,),
+        kg_per_unit=cfg.freight.kg_per_unit,
+        m3_per_unit=cfg.freight.m3_per_unit,
+        check_unit_sizes=True,
     )
     sites_label = sites.file if sites is not None else files.sites.name
-    return _network(sites, demand, distances, opts, problems, sites_label)
+    return _network(sites, demand, distances, opts, problems, sites_label, vehicles)
 
 
 def network_from_frames(
@@ -1372,6 +1665,7 @@ def network_from_frames(
     demand: pd.DataFrame,
     distances: pd.DataFrame | None = None,
     *,
+    vehicles: pd.DataFrame | None = None,
     volume_unit: str = "units",
     allow_same_site_demand: bool = False,
     hubs: int | None = None,
@@ -1389,6 +1683,8 @@ def network_from_frames(
     sites, demand, distances
         Site table, demand table (volume in units/day) and optional long-form
         distance table (km, hours).
+    vehicles
+        Optional vehicle class table (switches on the freight model).
     volume_unit
         The unit of every volume (see :data:`hubnet.units.VOLUME_UNITS`).
     allow_same_site_demand
@@ -1397,8 +1693,8 @@ def network_from_frames(
         Number of hubs the model will be asked to open, if fixed; checked
         against the number of candidate hubs.
     names
-        Names used for the tables in messages, by ``sites``, ``demand`` and
-        ``distances``; default the table names.
+        Names used for the tables in messages, by ``sites``, ``demand``,
+        ``distances`` and ``vehicles``; default the table names.
 
     Returns
     -------
@@ -1417,10 +1713,19 @@ def network_from_frames(
     >>> net.coordinates, net.ids, net.demand[0].volume
     ('planar', ('A', 'B'), 12.0)
     """
-    label = {"sites": "sites", "demand": "demand", "distances": "distances", **(names or {})}
+    label = {
+        "sites": "sites",
+        "demand": "demand",
+        "distances": "distances",
+        "vehicles": "vehicles",
+        **(names or {}),
+    }
     problems = _Problems()
     opts = _Options(
-        volume_unit=volume_unit, allow_same_site_demand=allow_same_site_demand, hubs=hubs
+        volume_unit=volume_unit,
+        allow_same_site_demand=allow_same_site_demand,
+        hubs=hubs,
+        fuels=_known_fuels() if vehicles is not None else (DEFAULT_FUEL,),
     )
     return _network(
         _table(label["sites"], sites),
@@ -1429,4 +1734,5 @@ def network_from_frames(
         opts,
         problems,
         label["sites"],
+        None if vehicles is None else _table(label["vehicles"], vehicles),
     )

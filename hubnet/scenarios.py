@@ -77,7 +77,7 @@ from typing import Any
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
 from hubnet.config import ScenarioConfig, load_config
-from hubnet.data import Demand, NetworkData
+from hubnet.data import NetworkData
 from hubnet.errors import InputError, Problem
 
 #: Config sections a scenario may change (``[scenario]`` is set by hubnet).
@@ -375,7 +375,7 @@ def apply_data_edits(
         f *= edits.demand_scale_by_origin.get(d.origin, 1.0)
         f *= edits.demand_scale_by_destination.get(d.destination, 1.0)
         f *= pairs.get((d.origin, d.destination), 1.0)
-        demand.append(d if f == 1.0 else Demand(d.origin, d.destination, d.volume * f))
+        demand.append(d if f == 1.0 else dataclasses.replace(d, volume=d.volume * f))
 
     # Sites.
     both = sorted(set(edits.close_hubs) & set(edits.open_hubs))

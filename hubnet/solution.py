@@ -83,6 +83,11 @@ class Route:
         The hubs where the volume is sorted, in order (one or two ids; a
         hub at the origin or destination is listed when the volume is
         sorted there). Empty for a direct route.
+    transit_h
+        Freight model: hours from the origin's cut-off to arrival (driving,
+        breaks, relays and sorts). ``None`` in the classic model.
+    allowance_h
+        Freight model: hours allowed from cut-off to the delivery deadline.
     """
 
     origin: str
@@ -92,6 +97,15 @@ class Route:
     distance_km: float
     cost: float
     hubs: tuple[str, ...] = ()
+    transit_h: float | None = None
+    allowance_h: float | None = None
+
+    @property
+    def slack_h(self) -> float | None:
+        """Hours to spare before the deadline (freight model), else ``None``."""
+        if self.transit_h is None or self.allowance_h is None:
+            return None
+        return self.allowance_h - self.transit_h
 
 
 @dataclass(frozen=True, slots=True)
@@ -110,7 +124,27 @@ class Leg:
     volume
         Units per day on the leg.
     cost
-        Transport cost of that volume on the leg, currency per day.
+        Transport cost of that volume on the leg, currency per day. In the
+        freight model: the one-way runs' share of the vehicles' cost (a
+        round trip's dispatch cost is split evenly between its two
+        directions, km and hour costs go with the direction driven).
+    dispatches
+        Freight model: vehicles run on this direction per day, by vehicle
+        class id. A round trip appears on both directions of its leg;
+        a direction with volume 0 is an empty return.
+    capacity
+        Freight model: units the dispatches can carry, per day.
+    drive_h
+        Freight model: driving hours of one run at the slowest class used.
+    transit_h
+        Freight model: hours from departure to arrival of one run
+        (driving, breaks and relays).
+    relays, drivers
+        Freight model: driver changes on one run, and drivers on board.
+    vehicle_km
+        Freight model: vehicle-km per day on this direction.
+    co2e_ttw_kg, co2e_wtw_kg
+        Freight model: tank-to-wheel and well-to-wheel CO2e, kg per day.
     """
 
     tier: Tier
@@ -119,6 +153,27 @@ class Leg:
     distance_km: float
     volume: float
     cost: float
+    dispatches: Mapping[str, float] = field(default_factory=dict)
+    capacity: float | None = None
+    drive_h: float | None = None
+    transit_h: float | None = None
+    relays: int = 0
+    drivers: int = 1
+    vehicle_km: float | None = None
+    co2e_ttw_kg: float | None = None
+    co2e_wtw_kg: float | None = None
+
+    @property
+    def fill(self) -> float | None:
+        """Volume over capacity (0..1) in the freight model, else ``None``."""
+        if self.capacity is None or self.capacity <= 0:
+            return None
+        return self.volume / self.capacity
+
+    @property
+    def vehicle_classes(self) -> str:
+        """Class ids used on the leg, joined by ``+`` (empty in the classic model)."""
+        return "+".join(k for k, v in sorted(self.dispatches.items()) if v > 0)
 
     @property
     def unit_km(self) -> float:
@@ -194,6 +249,7 @@ class Solution:
     volume_unit: str
     allocation: str
     site_names: Mapping[str, str] = field(default_factory=dict)
+    freight: Mapping[str, object] = field(default_factory=dict)
 
     @property
     def hub_ids(self) -> tuple[str, ...]:
