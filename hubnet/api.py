@@ -68,6 +68,20 @@ def solve_scenario(
     the local-search starting plan given to the solver as its MIP start.
     """
     cfg = scenario.config
+    if scenario.data.vehicles:
+        from hubnet.freight import solve_freight
+
+        if start_hubs is not None:
+            progress("a warm start is not used by the freight model yet; solving from scratch")
+        return solve_freight(
+            scenario.data,
+            scenario.distances,
+            cfg.model,
+            cfg.freight,
+            cfg.solver,
+            scenario=cfg.name,
+            progress=progress,
+        )
     return solve_network(
         scenario.data,
         scenario.distances.km,

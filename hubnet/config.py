@@ -25,21 +25,28 @@ Example
     [solver]
     name = "highs"
     time_limit_s = 60
+
+Naming a vehicles table (``inputs.vehicles``) switches on the freight model;
+its parameters are in the ``[service]``, ``[hours]`` and ``[freight]``
+sections (see :class:`~hubnet.fleet.FreightParams`), which the classic model
+ignores.
 """
 
 from __future__ import annotations
 
 import copy
+import datetime
 import difflib
 import re
 import tomllib
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Literal
+from typing import Annotated, Any, Literal
 
 from pydantic import (
     BaseModel,
+    BeforeValidator,
     ConfigDict,
     Field,
     ValidationError,
@@ -48,12 +55,64 @@ from pydantic import (
 )
 
 from hubnet.errors import InputError, Problem
+from hubnet.fleet import (
+    EmissionBasis,
+    FreightParams,
+    HoursParams,
+    LongLegPolicy,
+    Objective,
+    ServiceParams,
+)
 from hubnet.units import DEFAULT_CIRCUITY, VOLUME_UNITS
 
 Allocation = Literal["single", "multiple"]
 Formulation = Literal["auto", "flow", "benders"]
 SolverName = Literal["auto", "highs", "cbc"]
 DistanceMethod = Literal["auto", "geodesic", "euclidean", "matrix"]
+
+#: Drivers' hours rule sets built into hubnet (``hours.rules``); any other
+#: value is the path of a TOML rule file.
+BUILT_IN_HOURS_RULES = ("eu", "us")
+
+#: What a time-of-day value should look like, for messages.
+CLOCK_EXPECT = 'a time of day as "HH:MM" from 00:00 to 24:00'
+
+_CLOCK = re.compile(r"^(\d{1,2}):(\d{2})(?::(\d{2}))?$")
+
+
+def clock_hours(text: str) -> float:
+    """Hours after midnight of a time of day written ``HH:MM``.
+
+    ``00:00`` to ``24:00`` (the end of the day, as ISO 8601 allows) are
+    accepted; ``HH:MM:SS`` too, as spreadsheets write times that way.
+
+    Parameters
+    ----------
+    text
+        The time of day, e.g. ``"18:30"``.
+
+    Returns
+    -------
+    float
+        Hours after midnight, 0 to 24.
+
+    Raises
+    ------
+    ValueError
+        When the text is not a time of day in that form.
+
+    Examples
+    --------
+    >>> clock_hours("18:30"), clock_hours("8:00"), clock_hours("24:00")
+    (18.5, 8.0, 24.0)
+    """
+    m = _CLOCK.match(text.strip())
+    if m is None:
+        raise ValueError(f"expected {CLOCK_EXPECT}")
+    hours, minutes, seconds = int(m[1]), int(m[2]), int(m[3] or 0)
+    if minutes > 59 or seconds > 59 or hours > 24 or (hours == 24 and (minutes or seconds)):
+        raise ValueError(f"expected {CLOCK_EXPECT}")
+    return hours + minutes / 60.0 + seconds / 3600.0
 
 
 # --------------------------------------------------------------------------
@@ -78,6 +137,9 @@ class InputFiles:
         Allow demand from a site to itself (routed via the site's hub).
     sheet
         Excel sheet or GIS layer name, when the file holds several.
+    vehicles
+        Optional vehicle class table; when given, the freight model plans
+        vehicles on every leg.
     """
 
     sites: Path
@@ -86,6 +148,7 @@ class InputFiles:
     volume_unit: str = "units"
     allow_same_site_demand: bool = False
     sheet: str | None = None
+    vehicles: Path | None = None
 
 
 @dataclass(frozen=True, slots=True)
@@ -187,6 +250,11 @@ class ScenarioConfig:
         Shown in outputs.
     source
         The config file this came from (``None`` when built in Python).
+    freight
+        Parameters of the freight model, used when ``inputs.vehicles`` is
+        given (its ``kg_per_unit`` and ``m3_per_unit`` come from
+        ``[inputs]``, the rest from ``[service]``, ``[hours]`` and
+        ``[freight]``).
     """
 
     name: str
@@ -196,6 +264,7 @@ class ScenarioConfig:
     solver: SolverParams = field(default_factory=SolverParams)
     description: str = ""
     source: Path | None = None
+    freight: FreightParams = field(default_factory=FreightParams)
 
 
 # --------------------------------------------------------------------------
@@ -219,6 +288,9 @@ class _Inputs(_Strict):
     volume_unit: str = "units"
     allow_same_site_demand: bool = False
     sheet: str | None = None
+    vehicles: str | None = Field(default=None, min_length=1)
+    kg_per_unit: float | None = Field(default=None, gt=0, allow_inf_nan=False)
+    m3_per_unit: float | None = Field(default=None, gt=0, allow_inf_nan=False)
 
     @field_validator("volume_unit")
     @classmethod
@@ -260,12 +332,60 @@ class _Solver(_Strict):
     log: bool = False
 
 
+def _clock(value: Any) -> float:
+    """A TOML time of day (``"18:00"`` text, or a TOML local time) as hours after midnight."""
+    if isinstance(value, datetime.time):
+        return value.hour + value.minute / 60.0 + value.second / 3600.0
+    if not isinstance(value, str):
+        raise ValueError(f'expected {CLOCK_EXPECT}, written as text such as "18:00"')
+    return clock_hours(value)
+
+
+_Clock = Annotated[float, BeforeValidator(_clock)]
+_SERVICE = ServiceParams()
+_HOURS = HoursParams()
+_FREIGHT = FreightParams()
+
+
+class _Service(_Strict):
+    cutoff: _Clock = _SERVICE.cutoff_h
+    deliver_by: _Clock = _SERVICE.deliver_by_h
+    days: int = Field(default=_SERVICE.days, ge=1)
+    sort_hours: float = Field(default=_SERVICE.sort_hours, ge=0, allow_inf_nan=False)
+
+
+class _Hours(_Strict):
+    rules: str = Field(default=_HOURS.rules, min_length=1)
+    long_legs: LongLegPolicy = _HOURS.long_legs
+    relay_minutes: float = Field(default=_HOURS.relay_minutes, ge=0, allow_inf_nan=False)
+    relay_cost: float = Field(default=_HOURS.relay_cost, ge=0, allow_inf_nan=False)
+    second_driver_cost_per_hour: float = Field(
+        default=_HOURS.second_driver_cost_per_hour, ge=0, allow_inf_nan=False
+    )
+
+
+class _Freight(_Strict):
+    round_trips: bool = _FREIGHT.round_trips
+    integer_vehicles: bool = _FREIGHT.integer_vehicles
+    direct_min_load: float = Field(default=_FREIGHT.direct_min_load, ge=0, allow_inf_nan=False)
+    value_of_time: float = Field(default=_FREIGHT.value_of_time, ge=0, allow_inf_nan=False)
+    carbon_price_per_t: float = Field(
+        default=_FREIGHT.carbon_price_per_t, ge=0, allow_inf_nan=False
+    )
+    emissions_basis: EmissionBasis = _FREIGHT.emissions_basis
+    max_transit_h: float | None = Field(default=_FREIGHT.max_transit_h, gt=0, allow_inf_nan=False)
+    minimise: Objective = _FREIGHT.minimise
+
+
 class _File(_Strict):
     scenario: _Scenario
     inputs: _Inputs
     distances: _Distances = _Distances()
     model: _Model = _Model()
     solver: _Solver = _Solver()
+    service: _Service = _Service()
+    hours: _Hours = _Hours()
+    freight: _Freight = _Freight()
 
 
 # --------------------------------------------------------------------------
@@ -398,16 +518,18 @@ def parse_config(
     InputError
         With one :class:`~hubnet.errors.Problem` per invalid key or value.
     """
+    problems: list[Problem] = []
+    spec: _File | None = None
     try:
         spec = _File.model_validate(dict(raw))
     except ValidationError as err:
-        raise InputError(_problems_from(err, file, text)) from None
+        problems += _problems_from(err, file, text)
+    problems += _freight_problems(raw, base_dir, file, text)
+    if problems or spec is None:
+        raise InputError(problems)
 
     def resolve(p: str | None) -> Path | None:
-        if p is None:
-            return None
-        path = Path(p).expanduser()
-        return path if path.is_absolute() else (base_dir / path)
+        return None if p is None else _resolve(p, base_dir)
 
     sites = resolve(spec.inputs.sites)
     demand = resolve(spec.inputs.demand)
@@ -423,11 +545,114 @@ def parse_config(
             volume_unit=spec.inputs.volume_unit,
             allow_same_site_demand=spec.inputs.allow_same_site_demand,
             sheet=spec.inputs.sheet,
+            vehicles=resolve(spec.inputs.vehicles),
         ),
         distances=DistanceParams(**spec.distances.model_dump()),
         model=HubModelParams(**spec.model.model_dump()),
         solver=SolverParams(**spec.solver.model_dump()),
+        freight=_freight_params(spec, base_dir),
     )
+
+
+def _resolve(p: str, base_dir: Path) -> Path:
+    """A path from the config, relative ones taken from the config's folder."""
+    path = Path(p).expanduser()
+    return path if path.is_absolute() else (base_dir / path)
+
+
+def _rules_spec(rules: str, base_dir: Path) -> str:
+    """``hours.rules`` as kept on :class:`HoursParams`: a built-in name or a resolved path."""
+    name = rules.strip()
+    if name.lower() in BUILT_IN_HOURS_RULES:
+        return name.lower()
+    return str(_resolve(name, base_dir))
+
+
+def _freight_params(spec: _File, base_dir: Path) -> FreightParams:
+    """The validated ``[service]``, ``[hours]``, ``[freight]`` sections (and unit sizes)."""
+    service, hours, freight = spec.service, spec.hours, spec.freight
+    return FreightParams(
+        service=ServiceParams(
+            cutoff_h=service.cutoff,
+            deliver_by_h=service.deliver_by,
+            days=service.days,
+            sort_hours=service.sort_hours,
+        ),
+        hours=HoursParams(
+            rules=_rules_spec(hours.rules, base_dir),
+            long_legs=hours.long_legs,
+            relay_minutes=hours.relay_minutes,
+            relay_cost=hours.relay_cost,
+            second_driver_cost_per_hour=hours.second_driver_cost_per_hour,
+        ),
+        round_trips=freight.round_trips,
+        integer_vehicles=freight.integer_vehicles,
+        direct_min_load=freight.direct_min_load,
+        value_of_time=freight.value_of_time,
+        carbon_price_per_t=freight.carbon_price_per_t,
+        emissions_basis=freight.emissions_basis,
+        kg_per_unit=spec.inputs.kg_per_unit,
+        m3_per_unit=spec.inputs.m3_per_unit,
+        max_transit_h=freight.max_transit_h,
+        minimise=freight.minimise,
+    )
+
+
+def _freight_problems(
+    raw: Mapping[str, Any], base_dir: Path, file: str, text: str
+) -> list[Problem]:
+    """Checks across keys of the freight model, on the raw mapping.
+
+    They run even when other keys are invalid, so every problem is
+    reported at once; values of the wrong type are left to the schema.
+    """
+
+    def section(name: str) -> Mapping[str, Any]:
+        value = raw.get(name)
+        return value if isinstance(value, Mapping) else {}
+
+    problems: list[Problem] = []
+    vehicles = section("inputs").get("vehicles")
+    if isinstance(vehicles, str) and vehicles and section("model").get("allocation") == "multiple":
+        problems.append(
+            Problem(
+                file,
+                _line_of(text, ("model", "allocation")),
+                "model.allocation",
+                "the freight model plans single allocation (each terminal works with one "
+                "hub); set allocation = 'single', or remove inputs.vehicles to plan "
+                "multiple allocation with the classic model",
+            )
+        )
+    rules = section("hours").get("rules")
+    if isinstance(rules, str) and rules.strip():
+        spec = _rules_spec(rules, base_dir)
+        where = (file, _line_of(text, ("hours", "rules")), "hours.rules")
+        if spec not in BUILT_IN_HOURS_RULES:
+            path = Path(spec)
+            if not path.exists():
+                word = rules.strip().lower()
+                close = [r for r in BUILT_IN_HOURS_RULES if sorted(r) == sorted(word)]
+                close = close or difflib.get_close_matches(word, BUILT_IN_HOURS_RULES, n=1)
+                hint = f"; did you mean {close[0]!r}?" if close and not path.suffix else ""
+                problems.append(
+                    Problem(
+                        *where,
+                        f"rule file not found: {path}; expected 'eu', 'us' or the path "
+                        f"of a TOML file with the drivers' hours limits{hint}",
+                    )
+                )
+            elif not path.is_file():
+                problems.append(Problem(*where, f"expected a rule file, got a folder: {path}"))
+            else:
+                # The file's own problems name the rule file and its lines.
+                from hubnet.hours import load_rules
+
+                try:
+                    load_rules(path)
+                except InputError as err:
+                    problems += err.problems
+    return problems
 
 
 def load_config(path: str | Path, overrides: Mapping[str, Any] | None = None) -> ScenarioConfig:

@@ -1,0 +1,1511 @@
+"""The freight model: hubs, single allocation, direct lanes and whole vehicles on every leg.
+
+The classic model prices a unit of volume per km; a carrier pays per
+vehicle. This model chooses, in one MILP (PuLP, solved by HiGHS or CBC):
+
+* the hubs (binary ``x[k, k]``) and the hub of every terminal (binary
+  ``x[i, k]``, single allocation as carriers run their networks);
+* which share of each OD pair's volume runs on a direct lane between the
+  two terminals (``direct[i, j]`` in [0, 1], on lanes whose volume could
+  justify a vehicle);
+* the trunk flows between hubs, per origin (``trunk[i, k, l]``), as in the
+  flow formulation of Ernst and Krishnamoorthy (1996), with at most one
+  trunk leg per unit;
+* the number of dispatches of every vehicle class on every feeder, trunk
+  and direct leg (``vehicles[tier, a, b, c, direction]``, integer), whose payloads must
+  cover the volume in each direction. A dispatch is a round trip: the two
+  directions of a leg share the vehicles and an empty return is paid
+  (``round_trips = false`` prices one-way runs instead).
+
+Costs per day: hub fixed costs, handling per unit at every hub passed, and
+per dispatch the class's fixed cost plus, for each run, km cost + hours on
+the road x hourly cost + relays + a second driver where the drivers' hours
+need one (+ carbon price x CO2e, + value of time x unit-hours, optional).
+
+Time: every leg has a timetable time, the time of its slowest allowed
+vehicle class (driving at the class's average speed, plus the breaks and
+relays the drivers'-hours rules impose), so a plan stays on time whichever
+allowed class runs the leg. A unit's transit time is the sum of its legs'
+times plus the sort time at every hub it passes. An OD pair's volume may
+only use paths that reach the destination within its allowance (cut-off
+to delivery deadline); pairs that cannot make it on any path are named
+before any solving.
+
+With one class of payload 1, fractional vehicles, one-way runs, no fixed
+or hourly costs and the classic km cost factors, the model is the single
+allocation flow formulation of Ernst and Krishnamoorthy (1996) and returns
+the classic optima (tests/test_freight.py).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+import time
+from collections import defaultdict
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import cast
+
+import numpy as np
+import pulp
+
+from hubnet.config import HubModelParams, SolverParams
+from hubnet.data import DistanceMatrix, NetworkData
+from hubnet.emissions import load_fuels
+from hubnet.errors import InfeasibleError, InputError, NoSolutionError, Problem, SolverError
+from hubnet.fleet import TIERS, FreightParams, Tier, VehicleClass
+from hubnet.hours import load_rules, time_leg
+from hubnet.model import HubModel, check_plan_possible
+from hubnet.solution import HubRecord, Leg, Route, Solution, SolveStats
+
+#: Transit times within this many hours of the allowance count as on time.
+TIME_TOLERANCE_H = 1e-6
+#: Roles of a run for the classic km cost factors.
+_COLLECT, _TRANSFER, _DISTRIBUTE, _DIRECT = 0, 1, 2, 3
+
+
+# --------------------------------------------------------------------------
+# Leg tables: one run of each class on each directed leg
+# --------------------------------------------------------------------------
+
+
+@dataclass(frozen=True, eq=False)
+class LegTables:
+    """Figures of one one-way run of every vehicle class on every directed leg.
+
+    Arrays are ``(C, n, n)`` (class, from site, to site) unless noted.
+
+    Attributes
+    ----------
+    classes
+        The vehicle classes, in index order.
+    km
+        ``(n, n)`` leg distances, km.
+    drive_h
+        Driving hours of one run.
+    transit_h
+        Hours from departure to arrival: driving, breaks and relays.
+    relays, drivers
+        Driver changes on the run, and drivers on board (1 or 2).
+    allowed
+        False where the drivers'-hours rules forbid the run.
+    km_cost
+        ``km x cost_per_km`` of one run, currency.
+    other_cost
+        Hours on the road x cost per hour, relays, second driver and carbon
+        price of one run, currency.
+    co2e_ttw_kg, co2e_wtw_kg
+        CO2e of one run, kg (tank-to-wheel, well-to-wheel).
+    payload
+        ``(C,)`` units one vehicle carries (weight and cubic limits applied).
+    binding
+        Per class, the binding payload limit: ``units``, ``kg`` or ``m3``.
+    rules
+        Name of the drivers'-hours rule set.
+    """
+
+    classes: tuple[VehicleClass, ...]
+    km: np.ndarray
+    drive_h: np.ndarray
+    transit_h: np.ndarray
+    relays: np.ndarray
+    drivers: np.ndarray
+    allowed: np.ndarray
+    km_cost: np.ndarray
+    other_cost: np.ndarray
+    co2e_ttw_kg: np.ndarray
+    co2e_wtw_kg: np.ndarray
+    payload: np.ndarray
+    binding: tuple[str, ...]
+    rules: str
+
+    def on_tier(self, c: int, tier: Tier) -> bool:
+        """True when class ``c`` may run legs of ``tier``."""
+        return tier in self.classes[c].tiers
+
+    def lane_classes(self, tier: Tier, a: int, b: int, both: bool) -> list[int]:
+        """Classes that may run ``a -> b`` on ``tier`` (and back, when ``both``)."""
+        return [
+            c
+            for c in range(len(self.classes))
+            if self.on_tier(c, tier)
+            and self.allowed[c, a, b]
+            and (not both or self.allowed[c, b, a])
+        ]
+
+    def timetable(self, tier: Tier, both: bool) -> np.ndarray:
+        """``(n, n)`` timetable hours of each directed leg on ``tier``: its slowest class.
+
+        ``inf`` where no class may run the leg.
+        """
+        n = self.km.shape[0]
+        out = np.full((n, n), -np.inf)
+        for c in range(len(self.classes)):
+            if not self.on_tier(c, tier):
+                continue
+            ok = self.allowed[c] & (self.allowed[c].T if both else True)
+            out = np.where(ok, np.maximum(out, self.transit_h[c]), out)
+        out[out == -np.inf] = np.inf
+        np.fill_diagonal(out, 0.0)
+        return out
+
+
+def leg_tables(data: NetworkData, distances: DistanceMatrix, fp: FreightParams) -> LegTables:
+    """Time, cost and CO2e of one run of every class on every directed leg.
+
+    Drive time is ``km / speed_kmh``; with a user matrix that has hours, the
+    larger of that and the matrix hours (a vehicle is not faster than the
+    routing engine's time, nor than its own average speed).
+
+    Raises
+    ------
+    InputError
+        When the drivers'-hours rule file or a fuel is unknown.
+    """
+    rules = load_rules(fp.hours.rules)
+    fuels = load_fuels()
+    km = np.asarray(distances.km, dtype=float)
+    n = km.shape[0]
+    classes = data.vehicles
+    count = len(classes)
+    shape = (count, n, n)
+    drive = np.zeros(shape)
+    transit = np.zeros(shape)
+    relays = np.zeros(shape, dtype=int)
+    drivers = np.ones(shape, dtype=int)
+    allowed = np.ones(shape, dtype=bool)
+    relay_h = fp.hours.relay_minutes / 60.0
+    problems = []
+    for c, v in enumerate(classes):
+        if v.fuel not in fuels:
+            problems.append(
+                Problem("vehicles", None, "fuel", f"vehicle {v.id!r}: unknown fuel {v.fuel!r}")
+            )
+        hours = km / v.speed_kmh
+        if distances.hours is not None:
+            hours = np.maximum(hours, distances.hours)
+        drive[c] = hours
+        cache: dict[float, tuple[float, int, int, bool]] = {}
+        for a in range(n):
+            for b in range(n):
+                if a == b:
+                    continue
+                h = float(hours[a, b])
+                got = cache.get(h)
+                if got is None:
+                    t = time_leg(h, rules, fp.hours.long_legs, relay_h)
+                    got = (t.transit_h, t.relays, t.drivers, t.allowed)
+                    cache[h] = got
+                transit[c, a, b], relays[c, a, b], drivers[c, a, b], allowed[c, a, b] = got
+    if problems:
+        raise InputError(problems)
+    km_cost = np.stack([km * v.cost_per_km for v in classes])
+    litres = np.stack([km * v.fuel_l_per_100km / 100.0 for v in classes])
+    ttw = np.stack([litres[c] * fuels[v.fuel].ttw_kg_per_l for c, v in enumerate(classes)])
+    wtw = np.stack([litres[c] * fuels[v.fuel].wtw_kg_per_l for c, v in enumerate(classes)])
+    basis = wtw if fp.emissions_basis == "wtw" else ttw
+    other = np.zeros(shape)
+    transit = np.where(allowed, transit, np.inf)  # a forbidden run is never timed
+    on_road = np.where(allowed, transit, 0.0)
+    for c, v in enumerate(classes):
+        other[c] = (
+            on_road[c] * v.cost_per_hour
+            + relays[c] * fp.hours.relay_cost
+            + (drivers[c] - 1) * on_road[c] * fp.hours.second_driver_cost_per_hour
+            + basis[c] / 1000.0 * fp.carbon_price_per_t
+        )
+    pay = [v.effective_payload(fp.kg_per_unit, fp.m3_per_unit) for v in classes]
+    return LegTables(
+        classes=classes,
+        km=km,
+        drive_h=drive,
+        transit_h=transit,
+        relays=relays,
+        drivers=drivers,
+        allowed=allowed,
+        km_cost=km_cost,
+        other_cost=other,
+        co2e_ttw_kg=ttw,
+        co2e_wtw_kg=wtw,
+        payload=np.array([p for p, _ in pay]),
+        binding=tuple(b for _, b in pay),
+        rules=rules.name,
+    )
+
+
+# --------------------------------------------------------------------------
+# Service: allowances and sort times
+# --------------------------------------------------------------------------
+
+
+def allowances(data: NetworkData, fp: FreightParams) -> np.ndarray:
+    """``(n, n)`` hours allowed from the origin's cut-off to the destination's deadline.
+
+    Demand rows with ``max_hours`` override the pair's allowance.
+    """
+    svc = fp.service
+    cut = np.array([svc.cutoff_h if s.cutoff_h is None else s.cutoff_h for s in data.sites])
+    due = np.array(
+        [svc.deliver_by_h if s.deliver_by_h is None else s.deliver_by_h for s in data.sites]
+    )
+    gap = (due[None, :] - cut[:, None]) % 24.0
+    gap[gap == 0.0] = 24.0
+    out = gap + 24.0 * (svc.days - 1)
+    for d in data.demand:
+        if d.max_hours is not None:
+            out[data.index(d.origin), data.index(d.destination)] = d.max_hours
+    return out
+
+
+def sort_hours(data: NetworkData, fp: FreightParams) -> np.ndarray:
+    """``(n,)`` hours a unit spends in each site's sort when it is a hub."""
+    default = fp.service.sort_hours
+    return np.array([default if s.sort_hours is None else s.sort_hours for s in data.sites])
+
+
+# --------------------------------------------------------------------------
+# The MILP
+# --------------------------------------------------------------------------
+
+#: ``(tier, a, b, class, direction)``: a feeder leg has ``a`` = terminal and ``b`` =
+#: hub; direction 0 is the run ``a -> b`` (with its return, for round trips),
+#: direction 1 the one-way run ``b -> a``.
+LaneKey = tuple[str, int, int, int, int]
+
+
+@dataclass(eq=False)
+class FreightModel(HubModel):
+    """The freight MILP and handles to read the plan back.
+
+    Attributes
+    ----------
+    direct
+        ``direct[(i, j)]``: share of OD (i, j) on the direct lane.
+    vehicles
+        ``vehicles[(tier, a, b, c)]``: dispatches of class c on the leg
+        (a round trip between a and b, or the one-way run a -> b).
+    lanes
+        Number of legs offered to the model, by tier.
+    deadline_rows
+        Number of deadline constraints.
+    """
+
+    direct: dict[tuple[int, int], pulp.LpVariable] = field(default_factory=dict)
+    vehicles: dict[LaneKey, pulp.LpVariable] = field(default_factory=dict)
+    lanes: dict[str, int] = field(default_factory=dict)
+    deadline_rows: int = 0
+    unit_hours: pulp.LpAffineExpression | None = None
+    all_direct: dict[tuple[int, int], pulp.LpVariable] = field(default_factory=dict)
+
+
+@dataclass(frozen=True, eq=False)
+class _Setup:
+    """Everything the model and the plan evaluation share."""
+
+    w: np.ndarray
+    cand: list[int]
+    tables: LegTables
+    allow: np.ndarray
+    sort: np.ndarray
+    feeder_t: np.ndarray
+    trunk_t: np.ndarray
+    direct_t: np.ndarray
+    direct_pairs: frozenset[tuple[int, int]]
+    feeder_ok: np.ndarray  # (n, n) bool: terminal i may be allocated to hub k
+    trunk_ok: np.ndarray  # (n, n) bool
+
+
+def _direction_ok(tables: LegTables, tier: Tier, round_trips: bool) -> np.ndarray:
+    n = tables.km.shape[0]
+    ok = np.zeros((n, n), dtype=bool)
+    for c in range(len(tables.classes)):
+        if tables.on_tier(c, tier):
+            ok |= tables.allowed[c] & (tables.allowed[c].T if round_trips else True)
+    return ok
+
+
+def _setup(
+    data: NetworkData, distances: DistanceMatrix, params: HubModelParams, fp: FreightParams
+) -> _Setup:
+    check_plan_possible(data, params)
+    if params.allocation != "single":
+        raise InputError(
+            Problem(
+                "config",
+                None,
+                "model.allocation",
+                "the freight model plans single allocation (each terminal works with one hub)",
+            )
+        )
+    tables = leg_tables(data, distances, fp)
+    w = data.flow_matrix()
+    n = data.n
+    cand = [k for k, s in enumerate(data.sites) if s.is_candidate]
+    both = fp.round_trips
+    feeder_ok = _direction_ok(tables, "feeder", both)
+    if not both:
+        feeder_ok &= feeder_ok.T
+    feeder_ok = feeder_ok.copy()
+    for k in range(n):
+        feeder_ok[k, k] = True
+    trunk_ok = _direction_ok(tables, "trunk", both)
+    direct_ok = _direction_ok(tables, "direct", both)
+    direct_payloads = [
+        tables.payload[c] for c in range(len(tables.classes)) if tables.on_tier(c, "direct")
+    ]
+    pairs: set[tuple[int, int]] = set()
+    if direct_payloads:
+        threshold = fp.direct_min_load * min(direct_payloads)
+        big = np.maximum(w, w.T) >= max(threshold, 1e-12)
+        np.fill_diagonal(big, False)
+        rows, cols = np.nonzero(big & direct_ok & (w > 0))
+        pairs = {(int(i), int(j)) for i, j in zip(rows, cols, strict=True)}
+    return _Setup(
+        w=w,
+        cand=cand,
+        tables=tables,
+        allow=allowances(data, fp),
+        sort=sort_hours(data, fp),
+        feeder_t=tables.timetable("feeder", both),
+        trunk_t=tables.timetable("trunk", both),
+        direct_t=tables.timetable("direct", both),
+        direct_pairs=frozenset(pairs),
+        feeder_ok=feeder_ok,
+        trunk_ok=trunk_ok,
+    )
+
+
+def path_hours(st: _Setup, i: int, k: int, m: int, j: int) -> float:
+    """Transit hours of ``i -> hub k -> hub m -> j`` (``k == m``: one hub)."""
+    t = st.feeder_t[i, k] + st.sort[k] + st.feeder_t[m, j]
+    if k != m:
+        t += st.trunk_t[k, m] + st.sort[m]
+    return float(t)
+
+
+def _path_matrix(st: _Setup, i: int, j: int) -> np.ndarray:
+    """``(|cand|, |cand|)`` transit hours of OD (i, j) over every hub pair (inf if impossible)."""
+    c = np.asarray(st.cand)
+    t = (
+        st.feeder_t[i, c][:, None]
+        + st.sort[c][:, None]
+        + st.trunk_t[np.ix_(c, c)]
+        + st.sort[c][None, :]
+        + st.feeder_t[c, j][None, :]
+    )
+    same = st.feeder_t[i, c] + st.sort[c] + st.feeder_t[c, j]
+    t[np.diag_indices_from(t)] = same
+    t = np.where(st.feeder_ok[i, c][:, None] & st.feeder_ok[j, c][None, :], t, np.inf)
+    trunk = st.trunk_ok[np.ix_(c, c)].copy()
+    np.fill_diagonal(trunk, True)
+    return np.where(trunk, t, np.inf)
+
+
+def _hhmm(hours: float) -> str:
+    h = hours % 24.0
+    return f"{int(h):02d}:{int(round((h - int(h)) * 60)) % 60:02d}"
+
+
+def unreachable_pairs(data: NetworkData, st: _Setup, limit: int = 20) -> list[str]:
+    """Sentences naming OD pairs that miss their deadline even on their fastest path."""
+    ids = data.ids
+    out: list[str] = []
+    rows, cols = np.nonzero(st.w)
+    late = 0
+    for i, j in zip(rows.tolist(), cols.tolist(), strict=True):
+        paths = _path_matrix(st, i, j)
+        best = float(paths.min()) if paths.size else math.inf
+        direct = st.direct_t[i, j] if (i, j) in st.direct_pairs else math.inf
+        fastest = min(best, direct)
+        if fastest <= st.allow[i, j] + TIME_TOLERANCE_H:
+            continue
+        late += 1
+        if len(out) >= limit:
+            continue
+        if not math.isfinite(fastest):
+            why = "no path: the drivers'-hours rules or the vehicle tiers forbid its legs"
+        elif direct <= best:
+            why = f"the direct lane takes {direct:.1f} h"
+        else:
+            pos = np.unravel_index(int(np.argmin(paths)), paths.shape)
+            k, m = st.cand[pos[0]], st.cand[pos[1]]
+            via = ids[k] if k == m else f"{ids[k]} and {ids[m]}"
+            why = (
+                f"the fastest path, via {via}, takes {best:.1f} h "
+                f"(feeder {st.feeder_t[i, k]:.1f} h, sort {st.sort[k]:.1f} h"
+                + (f", trunk {st.trunk_t[k, m]:.1f} h, sort {st.sort[m]:.1f} h" if k != m else "")
+                + f", feeder {st.feeder_t[m, j]:.1f} h)"
+            )
+        out.append(f"{ids[i]} -> {ids[j]}: {why}, but {st.allow[i, j]:.1f} h are allowed")
+    if late > len(out):
+        out.append(f"... and {late - len(out)} more OD pairs")
+    return out
+
+
+def _run_cost(
+    tables: LegTables, c: int, a: int, b: int, role: int, factors: tuple[float, float, float]
+) -> float:
+    f = 1.0 if role == _DIRECT else factors[role]
+    return float(f * tables.km_cost[c, a, b] + tables.other_cost[c, a, b])
+
+
+def _role(tier: Tier, from_hub: bool) -> int:
+    if tier == "feeder":
+        return _DISTRIBUTE if from_hub else _COLLECT
+    return _TRANSFER if tier == "trunk" else _DIRECT
+
+
+def dispatch_cost(
+    tables: LegTables, fp: FreightParams, tier: Tier, a: int, b: int, c: int
+) -> tuple[float, float]:
+    """Cost of one dispatch of class ``c`` on leg ``a``-``b``, split by direction.
+
+    For a feeder leg ``a`` is the terminal and ``b`` the hub (with one-way
+    runs, ``a`` may be the hub: the run out of it). Returns the cost of the
+    run ``a -> b`` and of the run ``b -> a`` (0 for one-way runs), each
+    with half the dispatch fixed cost on a round trip.
+    """
+    v = tables.classes[c]
+    factors = fp.km_cost_factors
+    if fp.round_trips:
+        fixed = v.cost_per_dispatch / 2.0
+        return (
+            fixed + _run_cost(tables, c, a, b, _role(tier, False), factors),
+            fixed + _run_cost(tables, c, b, a, _role(tier, True), factors),
+        )
+    return v.cost_per_dispatch + _run_cost(tables, c, a, b, _role(tier, False), factors), 0.0
+
+
+def one_way_cost(
+    tables: LegTables, fp: FreightParams, tier: Tier, s: int, t: int, c: int, from_hub: bool
+) -> float:
+    """Cost of one one-way dispatch of class ``c`` from ``s`` to ``t`` (``round_trips`` off)."""
+    v = tables.classes[c]
+    return v.cost_per_dispatch + _run_cost(
+        tables, c, s, t, _role(tier, from_hub), fp.km_cost_factors
+    )
+
+
+def _var(
+    prob: pulp.LpProblem, name: str, low: float | None, up: float | None, cat: str
+) -> pulp.LpVariable:
+    return prob.add_variable(name, low, up, cat=cat)
+
+
+def build_freight_model(
+    data: NetworkData,
+    st: _Setup,
+    params: HubModelParams,
+    fp: FreightParams,
+) -> FreightModel:
+    """Build the freight MILP (see the module docstring)."""
+    n = data.n
+    w = st.w
+    cand = st.cand
+    tables = st.tables
+    out_vol = w.sum(axis=1)
+    in_vol = w.sum(axis=0)
+    handling = np.array([s.handling_cost for s in data.sites])
+    prob = pulp.LpProblem("freight", pulp.LpMinimize)
+    vcat = pulp.LpInteger if fp.integer_vehicles else pulp.LpContinuous
+    cset = set(cand)
+    obj: dict[pulp.LpVariable, float] = defaultdict(float)
+    # unit-hours in transit, for the value of time and the average-time cap
+    hours_terms: dict[pulp.LpVariable, float] = defaultdict(float)
+
+    x: dict[tuple[int, int], pulp.LpVariable] = {}
+    for i in range(n):
+        for k in cand:
+            if st.feeder_ok[i, k]:
+                x[i, k] = _var(prob, f"x_{i}_{k}", 0, 1, pulp.LpBinary)
+    hub: list[pulp.LpVariable | None] = [x.get((k, k)) if k in cset else None for k in range(n)]
+    for i in range(n):
+        if not any((i, k) in x for k in cand):
+            raise InfeasibleError(
+                f"terminal {data.ids[i]} cannot be linked to any candidate hub: "
+                "no vehicle class may run a feeder leg to one within the drivers'-hours rules"
+            )
+    for k in cand:
+        site = data.sites[k]
+        if site.hub_fixed_cost:
+            obj[x[k, k]] += site.hub_fixed_cost
+
+    # direct shares
+    direct: dict[tuple[int, int], pulp.LpVariable] = {}
+    for i, j in sorted(st.direct_pairs):
+        direct[i, j] = _var(prob, f"direct_{i}_{j}", 0, 1, pulp.LpContinuous)
+    has_out_direct = {i for i, _ in direct}
+    has_in_direct = {j for _, j in direct}
+
+    def expr(
+        pairs: Mapping[pulp.LpVariable, float] | list[tuple[pulp.LpVariable, float]],
+    ) -> pulp.LpAffineExpression:
+        items = pairs.items() if isinstance(pairs, Mapping) else pairs
+        return pulp.LpAffineExpression([(v, a) for v, a in items if a != 0])
+
+    # collected volume g_out[i, k] and delivered volume g_in[j, l], as {var: coef} maps
+    def x_map(i: int, k: int, coef: float) -> dict[pulp.LpVariable, float]:
+        return {x[i, k]: coef} if (i, k) in x else {}
+
+    g_out: dict[tuple[int, int], dict[pulp.LpVariable, float]] = {}
+    g_in: dict[tuple[int, int], dict[pulp.LpVariable, float]] = {}
+    for i in range(n):
+        ks = [k for k in cand if (i, k) in x]
+        for vol, has, store, name in (
+            (out_vol[i], i in has_out_direct, g_out, "collect"),
+            (in_vol[i], i in has_in_direct, g_in, "deliver"),
+        ):
+            if vol <= 0:
+                continue
+            if not has:
+                for k in ks:
+                    store[i, k] = x_map(i, k, float(vol))
+                continue
+            gv = {k: _var(prob, f"{name}_{i}_{k}", 0, None, pulp.LpContinuous) for k in ks}
+            for k in ks:
+                prob += gv[k] - float(vol) * x[i, k] <= 0, f"{name}_open_{i}_{k}"
+                store[i, k] = {gv[k]: 1.0}
+            if name == "collect":
+                rhs_terms = [(direct[i, j], -float(w[i, j])) for j in range(n) if (i, j) in direct]
+            else:
+                rhs_terms = [(direct[o, i], -float(w[o, i])) for o in range(n) if (o, i) in direct]
+            # sum_k g = volume - direct volume
+            prob += (
+                expr([(gv[k], 1.0) for k in ks] + [(v, -a) for v, a in rhs_terms]) == float(vol),
+                f"{name}_all_{i}",
+            )
+
+    # delivered at hub k of volume from origin i: e[i, j, k]
+    def delivered(i: int, k: int) -> dict[pulp.LpVariable, float]:
+        terms: dict[pulp.LpVariable, float] = defaultdict(float)
+        for j in np.nonzero(w[i])[0].tolist():
+            if (j, k) not in x:
+                continue
+            if (i, j) in direct:
+                terms[e_var[i, j, k]] += 1.0
+            else:
+                terms[x[j, k]] += float(w[i, j])
+        return terms
+
+    e_var: dict[tuple[int, int, int], pulp.LpVariable] = {}
+    for (i, j), dv in direct.items():
+        ks = [k for k in cand if (j, k) in x]
+        for k in ks:
+            e_var[i, j, k] = _var(prob, f"via_{i}_{j}_{k}", 0, None, pulp.LpContinuous)
+            prob += e_var[i, j, k] - float(w[i, j]) * x[j, k] <= 0, f"via_open_{i}_{j}_{k}"
+        prob += (
+            expr([(e_var[i, j, k], 1.0) for k in ks] + [(dv, float(w[i, j]))]) == float(w[i, j]),
+            f"via_all_{i}_{j}",
+        )
+
+    # hub count, allocation, forced hubs, capacity
+    if params.hubs is not None:
+        prob += expr([(x[k, k], 1.0) for k in cand]) == params.hubs, "hub_count"
+    for i in range(n):
+        prob += expr([(x[i, k], 1.0) for k in cand if (i, k) in x]) == 1, f"assign_{i}"
+        for k in cand:
+            if i != k and (i, k) in x:
+                prob += x[i, k] - x[k, k] <= 0, f"open_{i}_{k}"
+    for k in cand:
+        if data.sites[k].hub_status == "open":
+            prob += x[k, k] == 1, f"forced_open_{k}"
+        cap = data.sites[k].sort_capacity
+        if params.capacitated and cap is not None:
+            terms: dict[pulp.LpVariable, float] = defaultdict(float)
+            for i in range(n):
+                for v, a in g_out.get((i, k), {}).items():
+                    terms[v] += a
+            terms[x[k, k]] -= float(cap)
+            prob += expr(terms) <= 0, f"capacity_{k}"
+
+    # handling at the first hub, and time to it
+    for (i, k), g in g_out.items():
+        for v, a in g.items():
+            obj[v] += a * handling[k]
+            hours_terms[v] += a * float(st.feeder_t[i, k] + st.sort[k])
+    for (j, l_), g in g_in.items():
+        for v, a in g.items():
+            hours_terms[v] += a * float(st.feeder_t[l_, j])
+    for (i, j), dv in direct.items():
+        hours_terms[dv] += float(w[i, j] * st.direct_t[i, j])
+
+    # trunk flows per origin, with at most one trunk leg per unit
+    trunk_pairs = [(k, m) for k in cand for m in cand if k != m and st.trunk_ok[k, m]]
+    y: dict[tuple[int, int, int], pulp.LpVariable] = {}
+    trunk_flow: dict[tuple[int, int], list[pulp.LpVariable]] = defaultdict(list)
+    for i in range(n):
+        if out_vol[i] <= 0:
+            continue
+        for k, m in trunk_pairs:
+            if (i, k) not in g_out:
+                continue
+            v = _var(prob, f"trunk_{i}_{k}_{m}", 0, None, pulp.LpContinuous)
+            y[i, k, m] = v
+            trunk_flow[k, m].append(v)
+            obj[v] += float(handling[m])
+            hours_terms[v] += float(st.trunk_t[k, m] + st.sort[m])
+        for k in cand:
+            if (i, k) not in x:
+                continue
+            out_y = [y[i, k, m] for m in cand if (i, k, m) in y]
+            in_y = [y[i, m, k] for m in cand if (i, m, k) in y]
+            terms = defaultdict(float)
+            for v in out_y:
+                terms[v] += 1.0
+            for v in in_y:
+                terms[v] -= 1.0
+            for v, a in g_out.get((i, k), {}).items():
+                terms[v] -= a
+            for v, a in delivered(i, k).items():
+                terms[v] += a
+            prob += expr(terms) == 0, f"flow_{i}_{k}"
+            if out_y:
+                one: dict[pulp.LpVariable, float] = defaultdict(float)
+                for v in out_y:
+                    one[v] += 1.0
+                for v, a in g_out.get((i, k), {}).items():
+                    one[v] -= a
+                prob += expr(one) <= 0, f"one_trunk_{i}_{k}"
+
+    # vehicles covering the volume on every leg, in each direction
+    vehicles: dict[LaneKey, pulp.LpVariable] = {}
+    lanes: dict[str, int] = defaultdict(int)
+
+    def cover(
+        tier: Tier,
+        a: int,
+        b: int,
+        there: dict[pulp.LpVariable, float],
+        back: dict[pulp.LpVariable, float],
+    ) -> None:
+        lanes[tier] += 1
+        if fp.round_trips:
+            cls = tables.lane_classes(tier, a, b, both=True)
+            if not cls:
+                raise SolverError(f"no class for {tier} leg {a}-{b}")  # excluded upstream
+            for c in cls:
+                v = _var(prob, f"veh_{tier}_{a}_{b}_{c}", 0, None, vcat)
+                vehicles[tier, a, b, c, 0] = v
+                ab, ba = dispatch_cost(tables, fp, tier, a, b, c)
+                obj[v] += ab + ba
+            for label, flow in (("there", there), ("back", back)):
+                if not flow:
+                    continue
+                cov: dict[pulp.LpVariable, float] = defaultdict(float)
+                terms = cov
+                for c in cls:
+                    terms[vehicles[tier, a, b, c, 0]] += float(tables.payload[c])
+                for v, coef in flow.items():
+                    terms[v] -= coef
+                prob.addConstraint(expr(terms) >= 0, f"payload_{tier}_{a}_{b}_{label}")
+            return
+        for s, t, flow, way in ((a, b, there, 0), (b, a, back, 1)):
+            if not flow:
+                continue
+            cls = tables.lane_classes(tier, s, t, both=False)
+            terms = defaultdict(float)
+            for c in cls:
+                v = _var(prob, f"veh_{tier}_{a}_{b}_{c}_{way}", 0, None, vcat)
+                vehicles[tier, a, b, c, way] = v
+                obj[v] += one_way_cost(tables, fp, tier, s, t, c, from_hub=way == 1)
+                terms[v] += float(tables.payload[c])
+            for v, coef in flow.items():
+                terms[v] -= coef
+            prob.addConstraint(expr(terms) >= 0, f"payload_{tier}_{a}_{b}_{way}")
+
+    for i in range(n):
+        for k in cand:
+            if i == k or (i, k) not in x:
+                continue
+            there = g_out.get((i, k), {})
+            back = g_in.get((i, k), {})
+            if there or back:
+                cover("feeder", i, k, there, back)
+    done: set[tuple[int, int]] = set()
+    for k, m in trunk_pairs:
+        key = (min(k, m), max(k, m)) if fp.round_trips else (k, m)
+        if key in done:
+            continue
+        done.add(key)
+        a, b = key
+        there = {v: 1.0 for v in trunk_flow.get((a, b), [])}
+        back = {v: 1.0 for v in trunk_flow.get((b, a), [])} if fp.round_trips else {}
+        if there or back:
+            cover("trunk", a, b, there, back)
+    done = set()
+    for i, j in sorted(direct):
+        key = (min(i, j), max(i, j)) if fp.round_trips else (i, j)
+        if key in done:
+            continue
+        done.add(key)
+        a, b = key
+        there = {direct[a, b]: float(w[a, b])} if (a, b) in direct else {}
+        back = {direct[b, a]: float(w[b, a])} if fp.round_trips and (b, a) in direct else {}
+        cover("direct", a, b, there, back)
+
+    if fp.integer_vehicles:
+        # Valid for whole vehicles: a leg that carries anything needs at least
+        # one vehicle. Much tighter than the payload rows alone when a leg's
+        # volume is a fraction of a payload (most feeder legs).
+        by_run: dict[tuple[str, int, int, int], list[pulp.LpVariable]] = defaultdict(list)
+        for (tier, a, b, _c, way), v in vehicles.items():
+            by_run[tier, a, b, way if not fp.round_trips else 0].append(v)
+        for (i, k), xv in x.items():
+            if i == k:
+                continue
+            both_ways = ((0, out_vol[i] + in_vol[i]),)
+            for way, vol in both_ways if fp.round_trips else ((0, out_vol[i]), (1, in_vol[i])):
+                runs = by_run.get(("feeder", i, k, way), [])
+                if vol > 0 and runs:
+                    prob += (
+                        expr([(v, 1.0) for v in runs] + [(xv, -1.0)]) >= 0,
+                        (f"one_vehicle_feeder_{i}_{k}_{way}"),
+                    )
+        for (i, j), dv in direct.items():
+            if fp.round_trips:
+                runs = by_run.get(("direct", min(i, j), max(i, j), 0), [])
+            else:
+                runs = by_run.get(("direct", i, j, 0), [])
+            if runs:
+                prob += (
+                    expr([(v, 1.0) for v in runs] + [(dv, -1.0)]) >= 0,
+                    (f"one_vehicle_direct_{i}_{j}"),
+                )
+
+    # service deadlines
+    rows = 0
+    all_direct: dict[tuple[int, int], pulp.LpVariable] = {}
+    odr, odc = np.nonzero(w)
+    for i, j in zip(odr.tolist(), odc.tolist(), strict=True):
+        paths = _path_matrix(st, i, j)
+        late = paths > st.allow[i, j] + TIME_TOLERANCE_H
+        if not late.any():
+            continue
+        escape = None
+        if (i, j) in direct and st.direct_t[i, j] <= st.allow[i, j] + TIME_TOLERANCE_H:
+            escape = _var(prob, f"all_direct_{i}_{j}", 0, 1, pulp.LpBinary)
+            all_direct[i, j] = escape
+            prob += direct[i, j] - escape >= 0, f"all_direct_{i}_{j}"
+        for pk, k in enumerate(cand):
+            if (i, k) not in x:
+                continue
+            ls = [cand[pl] for pl in np.nonzero(late[pk])[0].tolist() if (j, cand[pl]) in x]
+            if not ls:
+                continue
+            terms = defaultdict(float)
+            terms[x[i, k]] += 1.0
+            if i == j:
+                if k not in ls:
+                    continue
+                rhs = 0.0
+            else:
+                for m in ls:
+                    terms[x[j, m]] += 1.0
+                rhs = 1.0
+            if escape is not None:
+                terms[escape] -= 1.0
+            prob += expr(terms) <= rhs, f"deadline_{i}_{j}_{k}"
+            rows += 1
+
+    if fp.value_of_time:
+        for v, a in hours_terms.items():
+            obj[v] += fp.value_of_time * a
+    if fp.max_transit_h is not None:
+        total = float(w.sum())
+        prob += expr(hours_terms) <= fp.max_transit_h * total, "average_transit"
+    if fp.minimise == "transit":
+        prob += expr(hours_terms)
+    else:
+        prob += expr(obj)
+    model = FreightModel(
+        problem=prob,
+        formulation="freight (single allocation, vehicles per leg)",
+        hub=hub,
+        assign=x,
+        candidates=cand,
+        direct=direct,
+        vehicles=vehicles,
+        lanes=dict(lanes),
+        deadline_rows=rows,
+        all_direct=all_direct,
+    )
+    model.unit_hours = expr(hours_terms)
+    return model
+
+
+# --------------------------------------------------------------------------
+# Reading the plan back and pricing it
+# --------------------------------------------------------------------------
+
+
+@dataclass(frozen=True, slots=True)
+class FreightPlan:
+    """A plan as decisions only: what :func:`evaluate_freight` prices.
+
+    Attributes
+    ----------
+    hubs
+        Matrix indices of the open hubs.
+    assign
+        ``assign[i]``: hub index of site i.
+    direct
+        ``direct[(i, j)]``: share of OD (i, j) on its direct lane.
+    dispatches
+        ``dispatches[(tier, a, b, c)]``: dispatches of class c on the leg
+        (round trip a-b, or one-way run a -> b).
+    """
+
+    hubs: tuple[int, ...]
+    assign: np.ndarray
+    direct: Mapping[tuple[int, int], float]
+    dispatches: Mapping[LaneKey, float]
+
+
+def read_plan(model: FreightModel, fp: FreightParams) -> FreightPlan:
+    """The plan in the solver's current values (vehicle counts rounded when integer)."""
+    hubs = tuple(model.open_hubs())
+    assign = model.allocation()
+    assert assign is not None
+    shares: dict[tuple[int, int], float] = {}
+    for pair, dv in model.direct.items():
+        val = min(1.0, max(0.0, dv.varValue or 0.0))
+        if val > 1e-9:
+            shares[pair] = val
+    disp: dict[LaneKey, float] = {}
+    for key, v in model.vehicles.items():
+        val = v.varValue or 0.0
+        if fp.integer_vehicles:
+            val = float(round(val))
+        if val > 1e-9:
+            disp[key] = val
+    return FreightPlan(hubs, assign, shares, disp)
+
+
+def _runs(
+    plan: FreightPlan, fp: FreightParams, tables: LegTables
+) -> dict[tuple[str, int, int], dict[int, tuple[float, float]]]:
+    """Per directed run ``(tier, from, to)`` and class: dispatches and their cost.
+
+    A round trip's cost is split between its two directions (see
+    :func:`dispatch_cost`).
+    """
+    runs: dict[tuple[str, int, int], dict[int, tuple[float, float]]] = defaultdict(dict)
+
+    def add(key: tuple[str, int, int], c: int, count: float, cost: float) -> None:
+        n0, c0 = runs[key].get(c, (0.0, 0.0))
+        runs[key][c] = (n0 + count, c0 + count * cost)
+
+    for (tier, a, b, c, way), count in plan.dispatches.items():
+        t = cast(Tier, tier)
+        if fp.round_trips:
+            ab, ba = dispatch_cost(tables, fp, t, a, b, c)
+            add((tier, a, b), c, count, ab)
+            add((tier, b, a), c, count, ba)
+        elif way == 0:
+            add((tier, a, b), c, count, one_way_cost(tables, fp, t, a, b, c, False))
+        else:
+            add((tier, b, a), c, count, one_way_cost(tables, fp, t, b, a, c, True))
+    return runs
+
+
+def evaluate_freight(
+    data: NetworkData,
+    st: _Setup,
+    params: HubModelParams,
+    fp: FreightParams,
+    plan: FreightPlan,
+    stats: SolveStats,
+    scenario: str = "",
+) -> Solution:
+    """Price a freight plan from its decisions and build the :class:`Solution`.
+
+    Every figure is recomputed from the hubs, allocation, direct shares and
+    dispatches, independently of the solver; the payloads are checked to
+    cover the volume on every run and every route to meet its deadline.
+
+    Raises
+    ------
+    SolverError
+        When the plan does not cover a leg's volume or misses a deadline
+        (a solver tolerance problem; it should not happen).
+    """
+    ids = data.ids
+    w = st.w
+    tables = st.tables
+    handling = np.array([s.handling_cost for s in data.sites])
+    assign = plan.assign
+    hubs = sorted(plan.hubs)
+    flows: dict[tuple[str, int, int], float] = defaultdict(float)
+    routes: list[Route] = []
+    through = np.zeros(data.n)
+    inbound = np.zeros(data.n)
+    users: dict[int, set[int]] = {h: set() for h in hubs}
+    for i in range(data.n):
+        users.setdefault(int(assign[i]), set()).add(i)
+    handling_cost = 0.0
+    time_by_tier: dict[str, float] = defaultdict(float)
+    route_parts: list[
+        tuple[int, int, float, list[tuple[str, int, int]], float, tuple[int, ...]]
+    ] = []
+    rows, cols = np.nonzero(w)
+    for i, j in zip(rows.tolist(), cols.tolist(), strict=True):
+        vol = float(w[i, j])
+        dv = vol * plan.direct.get((i, j), 0.0)
+        if dv > 1e-9:
+            flows["direct", i, j] += dv
+            t = float(st.direct_t[i, j])
+            time_by_tier["direct"] += dv * t
+            route_parts.append((i, j, dv, [("direct", i, j)], t, ()))
+        hv = vol - dv
+        if hv <= 1e-9:
+            continue
+        k, m = int(assign[i]), int(assign[j])
+        legs_used: list[tuple[str, int, int]] = []
+        if i != k:
+            legs_used.append(("feeder", i, k))
+            time_by_tier["feeder"] += hv * float(st.feeder_t[i, k])
+        if k != m:
+            legs_used.append(("trunk", k, m))
+            time_by_tier["trunk"] += hv * float(st.trunk_t[k, m])
+        if m != j:
+            legs_used.append(("feeder", m, j))
+            time_by_tier["feeder"] += hv * float(st.feeder_t[m, j])
+        for key in legs_used:
+            flows[key] += hv
+        t = path_hours(st, i, k, m, j)
+        time_by_tier["sort"] += hv * float(st.sort[k] + (st.sort[m] if m != k else 0.0))
+        handling_cost += hv * (handling[k] + (handling[m] if m != k else 0.0))
+        through[k] += hv
+        inbound[k] += hv
+        if m != k:
+            through[m] += hv
+        route_parts.append((i, j, hv, legs_used, t, (k,) if k == m else (k, m)))
+
+    runs = _runs(plan, fp, tables)
+    tier_cost: dict[str, float] = defaultdict(float)
+    carbon_cost = 0.0
+    basis = tables.co2e_wtw_kg if fp.emissions_basis == "wtw" else tables.co2e_ttw_kg
+    by_class: dict[int, dict[str, float]] = {
+        c: {"runs": 0.0, "vehicle_km": 0.0, "co2e_ttw_kg": 0.0, "co2e_wtw_kg": 0.0}
+        for c in range(len(tables.classes))
+    }
+    timetables = {"feeder": st.feeder_t, "trunk": st.trunk_t, "direct": st.direct_t}
+    legs: list[Leg] = []
+    problems: list[str] = []
+    order = sorted(runs.items(), key=lambda kv: (TIERS.index(kv[0][0]), kv[0][1:]))
+    for (tier, s, t), got in order:
+        counts = {c: n for c, (n, _) in got.items() if n > 1e-9}
+        if not counts:
+            continue
+        volume = flows.get((tier, s, t), 0.0)
+        capacity = float(sum(tables.payload[c] * n for c, n in counts.items()))
+        if volume > capacity + 1e-6 * max(1.0, volume):
+            problems.append(
+                f"{tier} leg {ids[s]} -> {ids[t]}: {volume:.3f} units, capacity {capacity:.3f}"
+            )
+        cost = float(sum(got[c][1] for c in counts))
+        for c, n in counts.items():
+            carbon_cost += n * float(basis[c, s, t]) / 1000.0 * fp.carbon_price_per_t
+            rec = by_class[c]
+            rec["runs"] += n
+            rec["vehicle_km"] += n * float(tables.km[s, t])
+            rec["co2e_ttw_kg"] += n * float(tables.co2e_ttw_kg[c, s, t])
+            rec["co2e_wtw_kg"] += n * float(tables.co2e_wtw_kg[c, s, t])
+        tier_cost[tier] += cost
+        used = list(counts)
+        legs.append(
+            Leg(
+                tier=tier,  # type: ignore[arg-type]
+                origin=ids[s],
+                destination=ids[t],
+                distance_km=float(tables.km[s, t]),
+                volume=volume,
+                cost=cost,
+                dispatches={tables.classes[c].id: n for c, n in counts.items()},
+                capacity=capacity,
+                drive_h=float(max(tables.drive_h[c, s, t] for c in used)),
+                transit_h=float(timetables[tier][s, t]),
+                relays=int(max(tables.relays[c, s, t] for c in used)),
+                drivers=int(max(tables.drivers[c, s, t] for c in used)),
+                vehicle_km=float(sum(n * tables.km[s, t] for n in counts.values())),
+                co2e_ttw_kg=float(sum(n * tables.co2e_ttw_kg[c, s, t] for c, n in counts.items())),
+                co2e_wtw_kg=float(sum(n * tables.co2e_wtw_kg[c, s, t] for c, n in counts.items())),
+            )
+        )
+    for key, volume in flows.items():
+        if volume > 1e-6 and key not in runs:
+            problems.append(
+                f"{key[0]} leg {ids[key[1]]} -> {ids[key[2]]}: {volume:.3f} units, no vehicle"
+            )
+    # cost per unit of each leg (both directions share a round trip's cost)
+    lane_cost: dict[tuple[str, int, int], float] = {}
+    lane_volume: dict[tuple[str, int, int], float] = defaultdict(float)
+    for g, (tier, s, t) in zip(
+        legs, [(g.tier, data.index(g.origin), data.index(g.destination)) for g in legs], strict=True
+    ):
+        key = (tier, min(s, t), max(s, t)) if fp.round_trips else (tier, s, t)
+        lane_cost[key] = lane_cost.get(key, 0.0) + g.cost
+        lane_volume[key] += g.volume
+    time_cost = 0.0
+    for i, j, vol, legs_used, t, hub_idx in route_parts:
+        if t > st.allow[i, j] + 1e-6:
+            problems.append(
+                f"route {ids[i]} -> {ids[j]} takes {t:.2f} h, {st.allow[i, j]:.2f} h allowed"
+            )
+        cost = 0.0
+        for tier, s, u in legs_used:
+            key = (tier, min(s, u), max(s, u)) if fp.round_trips else (tier, s, u)
+            if lane_volume.get(key):
+                cost += vol * lane_cost[key] / lane_volume[key]
+        cost += vol * sum(handling[h] for h in hub_idx)
+        time_cost += fp.value_of_time * vol * t
+        path = [ids[i]]
+        for node in (*hub_idx, j):
+            if ids[node] != path[-1]:
+                path.append(ids[node])
+        routes.append(
+            Route(
+                origin=ids[i],
+                destination=ids[j],
+                volume=vol,
+                path=tuple(path),
+                distance_km=float(sum(tables.km[s, u] for _, s, u in legs_used)),
+                cost=float(cost),
+                hubs=tuple(ids[h] for h in hub_idx),
+                transit_h=t,
+                allowance_h=float(st.allow[i, j]),
+            )
+        )
+    if problems:
+        raise SolverError(
+            "the plan read back from the solver is not valid:\n  " + "\n  ".join(problems[:20])
+        )
+
+    records = [
+        HubRecord(
+            id=data.sites[h].id,
+            throughput=float(through[h]),
+            inbound=float(inbound[h]),
+            capacity=data.sites[h].sort_capacity,
+            terminals=tuple(ids[i] for i in sorted(users.get(h, set()))),
+            fixed_cost=data.sites[h].hub_fixed_cost,
+            handling_cost=float(through[h] * handling[h]),
+        )
+        for h in hubs
+    ]
+    costs = {
+        "hub_fixed": float(sum(data.sites[h].hub_fixed_cost for h in hubs)),
+        "handling": float(handling_cost),
+        "feeder": float(tier_cost.get("feeder", 0.0)),
+        "trunk": float(tier_cost.get("trunk", 0.0)),
+        "direct": float(tier_cost.get("direct", 0.0)),
+    }
+    # The carbon price is inside the vehicles' run costs; shown apart from them.
+    costs["time"] = float(time_cost)
+    costs["total"] = float(sum(costs.values()))
+    costs["carbon_in_vehicles"] = float(carbon_cost)
+    total_volume = float(w.sum())
+    freight = _plan_figures(plan, fp, tables, legs, routes, time_by_tier, total_volume, by_class)
+    return Solution(
+        scenario=scenario,
+        stats=stats,
+        hubs=tuple(records),
+        routes=tuple(routes),
+        legs=tuple(legs),
+        costs=costs,
+        volume_unit=data.volume_unit,
+        allocation="single",
+        site_names={s.id: s.name for s in data.sites},
+        freight=freight,
+    )
+
+
+def _plan_figures(
+    plan: FreightPlan,
+    fp: FreightParams,
+    tables: LegTables,
+    legs: Sequence[Leg],
+    routes: Sequence[Route],
+    time_by_tier: Mapping[str, float],
+    total_volume: float,
+    by_class: Mapping[int, Mapping[str, float]],
+) -> dict[str, object]:
+    """Plan-wide freight figures for :attr:`Solution.freight` and summary.json."""
+    dispatches = float(sum(plan.dispatches.values()))
+    vkm = float(sum(g.vehicle_km or 0.0 for g in legs))
+    ttw = float(sum(g.co2e_ttw_kg or 0.0 for g in legs))
+    wtw = float(sum(g.co2e_wtw_kg or 0.0 for g in legs))
+    unit_hours = float(sum(r.volume * (r.transit_h or 0.0) for r in routes))
+    on_time = float(sum(r.volume for r in routes if (r.slack_h or 0.0) >= -1e-6))
+    classes: dict[str, dict[str, object]] = {}
+    for c, v in enumerate(tables.classes):
+        classes[v.id] = {
+            "name": v.name,
+            "payload": float(tables.payload[c]),
+            "payload_limit": tables.binding[c],
+            "dispatches": float(
+                sum(n for (_, _, _, cc, _), n in plan.dispatches.items() if cc == c)
+            ),
+            **{k: float(val) for k, val in by_class[c].items()},
+        }
+    co2e = wtw if fp.emissions_basis == "wtw" else ttw
+
+    def per_unit(hours: float) -> float:
+        return hours / total_volume if total_volume else 0.0
+
+    return {
+        "vehicles": dispatches,
+        "dispatches": dispatches,
+        "vehicle_km": vkm,
+        "unit_km": float(sum(g.volume * g.distance_km for g in legs)),
+        "avg_transit_h": per_unit(unit_hours),
+        "max_transit_h": float(max((r.transit_h or 0.0) for r in routes)) if routes else 0.0,
+        "service_level": on_time / total_volume if total_volume else 1.0,
+        "co2e_kg": co2e,
+        "co2e_ttw_kg": ttw,
+        "co2e_wtw_kg": wtw,
+        "co2e_t": co2e / 1000.0,
+        "emissions_basis": fp.emissions_basis,
+        "feeder_h_per_unit": per_unit(time_by_tier.get("feeder", 0.0)),
+        "trunk_h_per_unit": per_unit(time_by_tier.get("trunk", 0.0)),
+        "direct_h_per_unit": per_unit(time_by_tier.get("direct", 0.0)),
+        "sort_h_per_unit": per_unit(time_by_tier.get("sort", 0.0)),
+        "round_trips": fp.round_trips,
+        "driving_rules": tables.rules,
+        "by_class": classes,
+    }
+
+
+# --------------------------------------------------------------------------
+# Solving
+# --------------------------------------------------------------------------
+
+
+def _explain_infeasible(data: NetworkData, st: _Setup, params: HubModelParams) -> str:
+    """Why no plan exists although every OD pair has an on-time path of its own."""
+    ids = data.ids
+    tight: list[tuple[int, str]] = []
+    rows, cols = np.nonzero(st.w)
+    for i, j in zip(rows.tolist(), cols.tolist(), strict=True):
+        ok = int((_path_matrix(st, i, j) <= st.allow[i, j] + TIME_TOLERANCE_H).sum())
+        tight.append((ok, f"{ids[i]} -> {ids[j]} ({ok} on-time hub pairs)"))
+    tight.sort()
+    lines = [
+        "every OD pair has an on-time path of its own, but no single-allocation plan "
+        "serves them all at once"
+        + (f" with {params.hubs} hubs" if params.hubs is not None else "")
+        + " within the sort capacities; the pairs with the fewest on-time hub pairs:"
+    ]
+    lines += [f"  {text}" for _, text in tight[:10]]
+    lines.append(
+        "loosen their deadlines (demand max_hours, site cut-off / deliver_by), allow more "
+        "hubs or faster vehicle classes on the tiers they use"
+    )
+    return "\n".join(lines)
+
+
+def solve_freight(
+    data: NetworkData,
+    distances: DistanceMatrix,
+    params: HubModelParams,
+    fp: FreightParams,
+    opts: SolverParams,
+    *,
+    scenario: str = "",
+    progress: Callable[[str], None] | None = None,
+) -> Solution:
+    """Choose hubs, routes and vehicles for a network with vehicle classes.
+
+    Parameters
+    ----------
+    data
+        Validated network with ``data.vehicles``.
+    distances
+        Leg distances (km) and optional hours.
+    params
+        Hub count, fixed costs, capacity (``allocation`` must be single).
+    fp
+        Freight parameters.
+    opts
+        Solver choice and limits; ``auto`` means HiGHS here.
+
+    Raises
+    ------
+    InfeasibleError
+        When OD pairs cannot meet their deadlines (named, with their fastest
+        path), or no plan serves them all at once.
+    NoSolutionError
+        When the time limit ran out before a plan was found.
+    """
+    say = progress or (lambda _: None)
+    if not data.vehicles:
+        raise InputError(Problem("config", None, "inputs.vehicles", "no vehicle classes given"))
+    opts = dataclasses.replace(opts, name="highs" if opts.name == "auto" else opts.name)
+    t0 = time.perf_counter()
+    st = _setup(data, distances, params, fp)
+    late = unreachable_pairs(data, st)
+    if late:
+        raise InfeasibleError(
+            "some OD pairs cannot meet their delivery deadline even on their fastest path:\n  "
+            + "\n  ".join(late)
+            + "\nloosen their deadlines (demand max_hours, site cut-off / deliver_by, service "
+            "days), allow faster classes on the tiers they use, or change hours.long_legs"
+        )
+    t1 = time.perf_counter()
+    start = starting_freight_plan(data, st, params, fp, max_seconds=20.0)
+    if start is not None:
+        say(
+            f"starting plan: {len(start.hubs)} hubs, "
+            f"{sum(start.dispatches.values()):,.0f} dispatches ({time.perf_counter() - t1:.1f} s)"
+        )
+    else:
+        say("no starting plan found quickly; the solver starts from scratch")
+    if fp.minimise == "transit":
+        # The fastest plan: least unit-hours first, then the cheapest plan that
+        # keeps that average transit time (a lexicographic optimum).
+        model, stats = _solve_model(data, st, params, fp, opts, say, "least transit time", start)
+        fastest = (stats.objective or 0.0) / max(float(st.w.sum()), 1e-12)
+        say(f"least average transit time {fastest:.3f} h; now the cheapest plan that keeps it")
+        cap = fastest * (1.0 + 1e-7) + 1e-7
+        if fp.max_transit_h is not None:
+            cap = min(cap, fp.max_transit_h)
+        fp = dataclasses.replace(fp, minimise="cost", max_transit_h=cap)
+    model, stats = _solve_model(data, st, params, fp, opts, say, "least cost", start)
+    stats = dataclasses.replace(stats, build_seconds=time.perf_counter() - t0 - stats.solve_seconds)
+    plan = read_plan(model, fp)
+    return evaluate_freight(data, st, params, fp, plan, stats, scenario=scenario)
+
+
+def _solve_model(
+    data: NetworkData,
+    st: _Setup,
+    params: HubModelParams,
+    fp: FreightParams,
+    opts: SolverParams,
+    say: Callable[[str], None],
+    goal: str,
+    start: FreightPlan | None = None,
+) -> tuple[FreightModel, SolveStats]:
+    """Build and solve one freight MILP; raise when there is no plan."""
+    from hubnet.solve import run_solver
+
+    t0 = time.perf_counter()
+    say(f"building the freight model for {data.n} sites and {len(data.vehicles)} vehicle classes")
+    model = build_freight_model(data, st, params, fp)
+    build_seconds = time.perf_counter() - t0
+    say(
+        f"model built in {build_seconds:.1f} s: {len(model.problem.variables())} variables, "
+        f"{model.problem.numConstraints()} constraints ({model.deadline_rows} deadline rows; "
+        + ", ".join(f"{v} {k} legs" for k, v in sorted(model.lanes.items()))
+        + f"; {len(model.direct)} OD pairs may go direct)"
+    )
+    if start is not None:
+        set_start(model, start)
+    limit = f" (limit {opts.time_limit_s:g} s)" if opts.time_limit_s else ""
+    say(f"solving for {goal} with {opts.name}{limit}")
+    stats = run_solver(model, opts, say)
+    stats = dataclasses.replace(stats, build_seconds=build_seconds)
+    if stats.status == "infeasible":
+        if fp.max_transit_h is not None:
+            raise InfeasibleError(
+                f"no plan keeps the average transit time within {fp.max_transit_h:.3f} h "
+                "while meeting every deadline"
+                + (f" with {params.hubs} hubs" if params.hubs is not None else "")
+            )
+        raise InfeasibleError(_explain_infeasible(data, st, params))
+    if stats.objective is None:
+        if opts.time_limit_s is not None:
+            raise NoSolutionError(f"no plan found within the time limit of {opts.time_limit_s:g} s")
+        raise SolverError(f"{opts.name} returned no plan")
+    say(
+        f"{stats.status}: {goal} {stats.objective:,.2f}, bound "
+        f"{stats.best_bound if stats.best_bound is not None else float('nan'):,.2f}, "
+        f"gap {100 * (stats.gap or 0):.4f} % in {stats.solve_seconds:.1f} s"
+    )
+    return model, stats
+
+
+# --------------------------------------------------------------------------
+# A starting plan for the solver
+# --------------------------------------------------------------------------
+
+
+def cheapest_cover(volume: float, payloads: Sequence[float], costs: Sequence[float]) -> list[int]:
+    """Whole vehicles of each class whose payloads cover ``volume`` at least cost.
+
+    Exact, by enumerating the counts of all classes but the last (the last
+    is filled up); meant for the few classes of a fleet.
+
+    Examples
+    --------
+    >>> cheapest_cover(40.0, [15.0, 33.0], [300.0, 500.0])  # 800 beats 3 x 300 and 2 x 500
+    [1, 1]
+    >>> cheapest_cover(12.0, [15.0, 33.0], [300.0, 500.0])
+    [1, 0]
+    """
+    count = len(payloads)
+    if volume <= 1e-9 or count == 0:
+        return [0] * count
+    limits = [math.ceil(volume / p - 1e-9) for p in payloads]
+    best: tuple[float, list[int]] = (math.inf, [0] * count)
+
+    def walk(c: int, left: float, chosen: list[int], spent: float) -> None:
+        nonlocal best
+        if spent >= best[0]:
+            return
+        if c == count - 1:
+            n = max(0, math.ceil(left / payloads[c] - 1e-9))
+            total = spent + n * costs[c]
+            if total < best[0]:
+                best = (total, [*chosen, n])
+            return
+        for n in range(limits[c] + 1):
+            walk(c + 1, max(0.0, left - n * payloads[c]), [*chosen, n], spent + n * costs[c])
+            if left - n * payloads[c] <= 0:
+                break
+
+    walk(0, volume, [], 0.0)
+    return best[1]
+
+
+def _late_count(st: _Setup, assign: np.ndarray, direct_ok: np.ndarray) -> np.ndarray:
+    """``(n,)`` late OD pairs touching each terminal under an allocation."""
+    n = len(assign)
+    late = np.zeros(n, dtype=int)
+    rows, cols = np.nonzero(st.w)
+    for i, j in zip(rows.tolist(), cols.tolist(), strict=True):
+        if direct_ok[i, j]:
+            continue
+        t = path_hours(st, i, int(assign[i]), int(assign[j]), j)
+        k, m = int(assign[i]), int(assign[j])
+        if k != m and not st.trunk_ok[k, m]:
+            t = math.inf
+        if t > st.allow[i, j] + TIME_TOLERANCE_H:
+            late[i] += 1
+            late[j] += 1
+    return late
+
+
+def starting_freight_plan(
+    data: NetworkData, st: _Setup, params: HubModelParams, fp: FreightParams, max_seconds: float
+) -> FreightPlan | None:
+    """A feasible plan to start the solver from, or ``None`` when none is found quickly.
+
+    Hubs and allocation come from the classic model's local search with
+    per-unit costs of full vehicles (the cheapest class per tier, round
+    trip); terminals are then moved between the open hubs until every
+    deadline is met (pairs that can go direct on time go direct); each leg
+    gets the cheapest whole-vehicle cover of its volume.
+    """
+    from hubnet.heuristics import starting_plan
+
+    tables = st.tables
+
+    def rate(tier: Tier) -> float:
+        best = math.inf
+        for c, v in enumerate(tables.classes):
+            if tables.on_tier(c, tier):
+                per_km = 2.0 * (v.cost_per_km + v.cost_per_hour / v.speed_kmh)
+                best = min(best, per_km / tables.payload[c])
+        return best if math.isfinite(best) else 0.0
+
+    proxy = dataclasses.replace(
+        params,
+        collection_factor=rate("feeder"),
+        transfer_factor=rate("trunk"),
+        distribution_factor=rate("feeder"),
+        cost_per_unit_km=1.0,
+    )
+    km = np.where(st.feeder_ok, tables.km, tables.km * 1e3)
+    found = starting_plan(data, km, proxy, max_seconds=max_seconds)
+    if found is None:
+        return None
+    hubs, assign, _ = found
+    if assign is None:
+        return None
+    assign = np.asarray(assign, dtype=int).copy()
+    direct_ok = np.zeros_like(st.w, dtype=bool)
+    for i, j in st.direct_pairs:
+        direct_ok[i, j] = st.direct_t[i, j] <= st.allow[i, j] + TIME_TOLERANCE_H
+    deadline = time.perf_counter() + max_seconds
+    late = _late_count(st, assign, direct_ok)
+    while late.sum() and time.perf_counter() < deadline:
+        worst = int(np.argmax(late))
+        if worst in hubs:
+            return None
+        best_hub, best_late = int(assign[worst]), int(late.sum())
+        for k in hubs:
+            if k == assign[worst] or not st.feeder_ok[worst, k]:
+                continue
+            trial = assign.copy()
+            trial[worst] = k
+            total = int(_late_count(st, trial, direct_ok).sum())
+            if total < best_late:
+                best_hub, best_late = k, total
+        if best_hub == assign[worst]:
+            return None
+        assign[worst] = best_hub
+        late = _late_count(st, assign, direct_ok)
+    if late.sum():
+        return None
+    # direct where the hub path is late
+    shares: dict[tuple[int, int], float] = {}
+    for i, j in st.direct_pairs:
+        k, m = int(assign[i]), int(assign[j])
+        if path_hours(st, i, k, m, j) > st.allow[i, j] + TIME_TOLERANCE_H:
+            shares[i, j] = 1.0
+    # flows on legs, then vehicles; lanes[key] = [volume there, volume back]
+    lanes: dict[tuple[str, int, int], list[float]] = defaultdict(lambda: [0.0, 0.0])
+
+    def add(tier: str, a: int, b: int, vol: float) -> None:
+        if tier == "feeder" or not fp.round_trips:
+            lanes[tier, a, b][0] += vol
+        else:
+            lo, hi = min(a, b), max(a, b)
+            lanes[tier, lo, hi][0 if a == lo else 1] += vol
+
+    rows, cols = np.nonzero(st.w)
+    for i, j in zip(rows.tolist(), cols.tolist(), strict=True):
+        vol = float(st.w[i, j])
+        if shares.get((i, j)):
+            add("direct", i, j, vol)
+            continue
+        k, m = int(assign[i]), int(assign[j])
+        if i != k:
+            add("feeder", i, k, vol)  # (feeder, terminal, hub): into the hub
+        if k != m:
+            add("trunk", k, m, vol)
+        if m != j:
+            lanes["feeder", j, m][1] += vol  # out of the hub, back to the terminal
+    dispatches: dict[LaneKey, float] = {}
+    for (tier, a, b), (there, back) in lanes.items():
+        t = cast(Tier, tier)
+        if fp.round_trips:
+            cls = tables.lane_classes(t, a, b, both=True)
+            cost = [sum(dispatch_cost(tables, fp, t, a, b, c)) for c in cls]
+            counts = cheapest_cover(max(there, back), [tables.payload[c] for c in cls], cost)
+            for c, n in zip(cls, counts, strict=True):
+                if n:
+                    dispatches[tier, a, b, c, 0] = float(n)
+            continue
+        for way, (s, u, vol) in enumerate(((a, b, there), (b, a, back))):
+            if vol <= 0:
+                continue
+            cls = tables.lane_classes(t, s, u, both=False)
+            cost = [one_way_cost(tables, fp, t, s, u, c, from_hub=way == 1) for c in cls]
+            counts = cheapest_cover(vol, [tables.payload[c] for c in cls], cost)
+            for c, n in zip(cls, counts, strict=True):
+                if n:
+                    dispatches[tier, a, b, c, way] = float(n)
+    return FreightPlan(tuple(sorted(hubs)), assign, shares, dispatches)
+
+
+def set_start(model: FreightModel, plan: FreightPlan) -> None:
+    """Give the solver ``plan`` as its starting point (values of the integer variables)."""
+    for (i, k), v in model.assign.items():
+        v.setInitialValue(1 if int(plan.assign[i]) == k else 0)
+    for key, v in model.vehicles.items():
+        v.setInitialValue(plan.dispatches.get(key, 0.0))
+    for pair, v in model.all_direct.items():
+        v.setInitialValue(1 if plan.direct.get(pair, 0.0) >= 1.0 else 0)
