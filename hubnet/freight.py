@@ -55,7 +55,7 @@ from hubnet.data import DistanceMatrix, NetworkData
 from hubnet.emissions import load_fuels
 from hubnet.errors import InfeasibleError, InputError, NoSolutionError, Problem, SolverError
 from hubnet.fleet import TIERS, FreightParams, Tier, VehicleClass
-from hubnet.hours import load_rules, time_leg
+from hubnet.hours import load_rules, time_legs
 from hubnet.model import HubModel, check_plan_possible
 from hubnet.solution import HubRecord, Leg, Route, Solution, SolveStats
 
@@ -186,18 +186,15 @@ def leg_tables(data: NetworkData, distances: DistanceMatrix, fp: FreightParams) 
         if distances.hours is not None:
             hours = np.maximum(hours, distances.hours)
         drive[c] = hours
-        cache: dict[float, tuple[float, int, int, bool]] = {}
-        for a in range(n):
-            for b in range(n):
-                if a == b:
-                    continue
-                h = float(hours[a, b])
-                got = cache.get(h)
-                if got is None:
-                    t = time_leg(h, rules, fp.hours.long_legs, relay_h)
-                    got = (t.transit_h, t.relays, t.drivers, t.allowed)
-                    cache[h] = got
-                transit[c, a, b], relays[c, a, b], drivers[c, a, b], allowed[c, a, b] = got
+        timed = time_legs(hours, rules, fp.hours.long_legs, relay_h)
+        transit[c], relays[c], drivers[c], allowed[c] = (
+            timed.transit_h,
+            timed.relays,
+            timed.drivers,
+            timed.allowed,
+        )
+        np.fill_diagonal(allowed[c], True)
+        np.fill_diagonal(transit[c], 0.0)
     if problems:
         raise InputError(problems)
     km_cost = np.stack([km * v.cost_per_km for v in classes])
@@ -314,6 +311,7 @@ class _Setup:
     direct_pairs: frozenset[tuple[int, int]]
     feeder_ok: np.ndarray  # (n, n) bool: terminal i may be allocated to hub k
     trunk_ok: np.ndarray  # (n, n) bool
+    late: dict[tuple[int, int], np.ndarray] = field(default_factory=dict)
 
 
 def _direction_ok(tables: LegTables, tier: Tier, round_trips: bool) -> np.ndarray:
@@ -400,6 +398,85 @@ def _path_matrix(st: _Setup, i: int, j: int) -> np.ndarray:
     trunk = st.trunk_ok[np.ix_(c, c)].copy()
     np.fill_diagonal(trunk, True)
     return np.where(trunk, t, np.inf)
+
+
+def late_paths(st: _Setup, i: int, j: int) -> np.ndarray:
+    """``(|cand|, |cand|)`` True where OD (i, j) via hubs (k, m) misses its deadline (cached)."""
+    got = st.late.get((i, j))
+    if got is None:
+        got = _path_matrix(st, i, j) > st.allow[i, j] + TIME_TOLERANCE_H
+        st.late[i, j] = got
+    return got
+
+
+def _direct_on_time(st: _Setup, i: int, j: int) -> bool:
+    return (i, j) in st.direct_pairs and st.direct_t[i, j] <= st.allow[i, j] + TIME_TOLERANCE_H
+
+
+def restrict_allocations(data: NetworkData, st: _Setup) -> int:
+    """Rule out allocations that make some OD pair late whatever the other end does.
+
+    Terminal i may not work with hub k when an OD pair from or to i (that
+    cannot go direct on time) is late through k with every hub the other
+    end may use. Repeated until nothing changes. Returns how many
+    allocations were ruled out.
+
+    Raises
+    ------
+    InfeasibleError
+        When a terminal is left without any hub it could work with.
+    """
+    cand = np.asarray(st.cand)
+    removed = 0
+    changed = True
+    rows, cols = np.nonzero(st.w)
+    pairs = [
+        (i, j)
+        for i, j in zip(rows.tolist(), cols.tolist(), strict=True)
+        if not _direct_on_time(st, i, j)
+    ]
+    while changed:
+        changed = False
+        for i, j in pairs:
+            late = late_paths(st, i, j)
+            if not late.any():
+                continue
+            ok_k = st.feeder_ok[i, cand]
+            ok_m = st.feeder_ok[j, cand]
+            good = ~late & ok_k[:, None] & ok_m[None, :]
+            if i == j:
+                keep_k = keep_m = np.diag(good).copy()
+            else:
+                keep_k, keep_m = good.any(axis=1), good.any(axis=0)
+            for site, ok, keep in ((i, ok_k, keep_k), (j, ok_m, keep_m)):
+                drop = ok & ~keep
+                if drop.any():
+                    st.feeder_ok[site, cand[drop]] = False
+                    removed += int(drop.sum())
+                    changed = True
+        for k in st.cand:  # a hub that cannot serve its own pairs cannot open
+            if not st.feeder_ok[k, k] and st.feeder_ok[:, k].any():
+                removed += int(st.feeder_ok[:, k].sum())
+                st.feeder_ok[:, k] = False
+                changed = True
+    ids = data.ids
+    closed = [k for k in st.cand if data.sites[k].hub_status == "open" and not st.feeder_ok[k, k]]
+    if closed:
+        raise InfeasibleError(
+            "hubs forced open cannot meet the deadlines of their own OD pairs: "
+            + ", ".join(ids[k] for k in closed)
+        )
+    stuck = [i for i in range(data.n) if not st.feeder_ok[i, cand].any()]
+    if stuck:
+        raise InfeasibleError(
+            "no hub can serve "
+            + ", ".join(ids[i] for i in stuck[:10])
+            + (" and others" if len(stuck) > 10 else "")
+            + " on time: each hub such a terminal could work with makes one of its OD pairs "
+            "late whatever hub the other end uses; loosen those pairs' deadlines or allow "
+            "faster vehicle classes"
+        )
+    return removed
 
 
 def _hhmm(hours: float) -> str:
@@ -526,7 +603,8 @@ def build_freight_model(
                 f"terminal {data.ids[i]} cannot be linked to any candidate hub: "
                 "no vehicle class may run a feeder leg to one within the drivers'-hours rules"
             )
-    for k in cand:
+    openable = [k for k in cand if (k, k) in x]  # deadlines may rule some hubs out
+    for k in openable:
         site = data.sites[k]
         if site.hub_fixed_cost:
             obj[x[k, k]] += site.hub_fixed_cost
@@ -534,7 +612,10 @@ def build_freight_model(
     # direct shares
     direct: dict[tuple[int, int], pulp.LpVariable] = {}
     for i, j in sorted(st.direct_pairs):
-        direct[i, j] = _var(prob, f"direct_{i}_{j}", 0, 1, pulp.LpContinuous)
+        # FIX (found by tests/test_freight.py): a direct lane that misses the
+        # pair's deadline may carry none of its volume.
+        late = st.direct_t[i, j] > st.allow[i, j] + TIME_TOLERANCE_H
+        direct[i, j] = _var(prob, f"direct_{i}_{j}", 0, 0 if late else 1, pulp.LpContinuous)
     has_out_direct = {i for i, _ in direct}
     has_in_direct = {j for _, j in direct}
 
@@ -601,13 +682,13 @@ def build_freight_model(
 
     # hub count, allocation, forced hubs, capacity
     if params.hubs is not None:
-        prob += expr([(x[k, k], 1.0) for k in cand]) == params.hubs, "hub_count"
+        prob += expr([(x[k, k], 1.0) for k in openable]) == params.hubs, "hub_count"
     for i in range(n):
         prob += expr([(x[i, k], 1.0) for k in cand if (i, k) in x]) == 1, f"assign_{i}"
         for k in cand:
             if i != k and (i, k) in x:
                 prob += x[i, k] - x[k, k] <= 0, f"open_{i}_{k}"
-    for k in cand:
+    for k in openable:
         if data.sites[k].hub_status == "open":
             prob += x[k, k] == 1, f"forced_open_{k}"
         cap = data.sites[k].sort_capacity
@@ -645,9 +726,9 @@ def build_freight_model(
             trunk_flow[k, m].append(v)
             obj[v] += float(handling[m])
             hours_terms[v] += float(st.trunk_t[k, m] + st.sort[m])
-        for k in cand:
-            if (i, k) not in x:
-                continue
+        for k in openable:
+            # Balance at every hub that may open: volume from i may be delivered
+            # at a hub that i itself cannot be allocated to.
             out_y = [y[i, k, m] for m in cand if (i, k, m) in y]
             in_y = [y[i, m, k] for m in cand if (i, m, k) in y]
             terms = defaultdict(float)
@@ -659,7 +740,8 @@ def build_freight_model(
                 terms[v] -= a
             for v, a in delivered(i, k).items():
                 terms[v] += a
-            prob += expr(terms) == 0, f"flow_{i}_{k}"
+            if terms:
+                prob += expr(terms) == 0, f"flow_{i}_{k}"
             if out_y:
                 one: dict[pulp.LpVariable, float] = defaultdict(float)
                 for v in out_y:
@@ -751,13 +833,19 @@ def build_freight_model(
         by_run: dict[tuple[str, int, int, int], list[pulp.LpVariable]] = defaultdict(list)
         for (tier, a, b, _c, way), v in vehicles.items():
             by_run[tier, a, b, way if not fp.round_trips else 0].append(v)
+        # FIX (found by tests/test_freight.py): only volume that cannot go direct
+        # forces a feeder vehicle; a terminal whose volume may all go direct needs none.
+        hub_out, hub_in = out_vol.copy(), in_vol.copy()
+        for i, j in direct:
+            hub_out[i] -= w[i, j]
+            hub_in[j] -= w[i, j]
         for (i, k), xv in x.items():
             if i == k:
                 continue
-            both_ways = ((0, out_vol[i] + in_vol[i]),)
-            for way, vol in both_ways if fp.round_trips else ((0, out_vol[i]), (1, in_vol[i])):
+            both_ways = ((0, hub_out[i] + hub_in[i]),)
+            for way, vol in both_ways if fp.round_trips else ((0, hub_out[i]), (1, hub_in[i])):
                 runs = by_run.get(("feeder", i, k, way), [])
-                if vol > 0 and runs:
+                if vol > 1e-9 and runs:
                     prob += (
                         expr([(v, 1.0) for v in runs] + [(xv, -1.0)]) >= 0,
                         (f"one_vehicle_feeder_{i}_{k}_{way}"),
@@ -778,8 +866,7 @@ def build_freight_model(
     all_direct: dict[tuple[int, int], pulp.LpVariable] = {}
     odr, odc = np.nonzero(w)
     for i, j in zip(odr.tolist(), odc.tolist(), strict=True):
-        paths = _path_matrix(st, i, j)
-        late = paths > st.allow[i, j] + TIME_TOLERANCE_H
+        late = late_paths(st, i, j)
         if not late.any():
             continue
         escape = None
@@ -1253,6 +1340,12 @@ def solve_freight(
             "days), allow faster classes on the tiers they use, or change hours.long_legs"
         )
     t1 = time.perf_counter()
+    removed = restrict_allocations(data, st)
+    say(
+        f"deadlines rule out {removed} of {int(st.feeder_ok[:, st.cand].sum()) + removed} "
+        f"terminal-hub allocations ({time.perf_counter() - t1:.1f} s)"
+    )
+    t1 = time.perf_counter()
     start = starting_freight_plan(data, st, params, fp, max_seconds=20.0)
     if start is not None:
         say(
@@ -1417,12 +1510,21 @@ def starting_freight_plan(
         distribution_factor=rate("feeder"),
         cost_per_unit_km=1.0,
     )
-    km = np.where(st.feeder_ok, tables.km, tables.km * 1e3)
-    found = starting_plan(data, km, proxy, max_seconds=max_seconds)
-    if found is None:
-        return None
-    hubs, assign, _ = found
-    if assign is None:
+    # Allocations the deadlines rule out get a prohibitive length.
+    km = np.where(st.feeder_ok, tables.km, tables.km.max() * 1e6 + 1e6)
+    found = starting_plan(data, km, proxy, max_seconds=max_seconds / 2)
+    ok = found is not None and found[1] is not None
+    if ok:
+        assert found is not None and found[1] is not None
+        hubs, assign = list(found[0]), np.asarray(found[1], dtype=int)
+        ok = bool(st.feeder_ok[np.arange(data.n), assign].all())
+    if not ok and params.hubs is None:
+        # Every hub that may open, each terminal with its nearest allowed hub.
+        hubs = [k for k in st.cand if st.feeder_ok[k, k]]
+        near = np.where(st.feeder_ok[:, hubs], tables.km[:, hubs], np.inf)
+        assign = np.asarray(hubs)[np.argmin(near, axis=1)]
+        ok = bool(np.isfinite(near.min(axis=1)).all())
+    if not ok:
         return None
     assign = np.asarray(assign, dtype=int).copy()
     direct_ok = np.zeros_like(st.w, dtype=bool)
@@ -1431,21 +1533,27 @@ def starting_freight_plan(
     deadline = time.perf_counter() + max_seconds
     late = _late_count(st, assign, direct_ok)
     while late.sum() and time.perf_counter() < deadline:
-        worst = int(np.argmax(late))
-        if worst in hubs:
-            return None
-        best_hub, best_late = int(assign[worst]), int(late.sum())
-        for k in hubs:
-            if k == assign[worst] or not st.feeder_ok[worst, k]:
+        moved = False
+        for worst in np.argsort(-late).tolist():
+            if late[worst] == 0:
+                break
+            if worst in hubs:
                 continue
-            trial = assign.copy()
-            trial[worst] = k
-            total = int(_late_count(st, trial, direct_ok).sum())
-            if total < best_late:
-                best_hub, best_late = k, total
-        if best_hub == assign[worst]:
+            best_hub, best_late = int(assign[worst]), int(late.sum())
+            for k in hubs:
+                if k == assign[worst] or not st.feeder_ok[worst, k]:
+                    continue
+                trial = assign.copy()
+                trial[worst] = k
+                total = int(_late_count(st, trial, direct_ok).sum())
+                if total < best_late:
+                    best_hub, best_late = k, total
+            if best_hub != assign[worst]:
+                assign[worst] = best_hub
+                moved = True
+                break
+        if not moved:
             return None
-        assign[worst] = best_hub
         late = _late_count(st, assign, direct_ok)
     if late.sum():
         return None

@@ -60,3 +60,17 @@ def test_iberia_generator_reproduces_the_demand_file() -> None:
     )
     assert result.returncode == 0, result.stdout + result.stderr
     assert "up to date" in result.stdout
+
+
+@pytest.mark.parametrize("extra", [[], ["--small"]], ids=["france", "france_small"])
+def test_france_generator_reproduces_its_files(extra: list[str]) -> None:
+    # The national demo's sites, demand and vehicles are generated; the
+    # committed CSV files must be exactly what the generator writes.
+    result = subprocess.run(
+        [sys.executable, str(REPO / "demo_regions" / "france" / "generate.py"), *extra, "--check"],
+        capture_output=True,
+        text=True,
+        timeout=300,
+        check=False,
+    )
+    assert result.returncode == 0, result.stdout + result.stderr
