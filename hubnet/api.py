@@ -71,8 +71,6 @@ def solve_scenario(
     if scenario.data.vehicles:
         from hubnet.freight import solve_freight
 
-        if start_hubs is not None:
-            progress("a warm start is not used by the freight model yet; solving from scratch")
         return solve_freight(
             scenario.data,
             scenario.distances,
@@ -81,6 +79,7 @@ def solve_scenario(
             cfg.solver,
             scenario=cfg.name,
             progress=progress,
+            start_hubs=start_hubs,
         )
     return solve_network(
         scenario.data,

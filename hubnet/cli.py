@@ -16,6 +16,7 @@ from typing import Annotated
 import typer
 
 from hubnet.cli_common import err_console, fail
+from hubnet.cli_frontier import frontier_command
 from hubnet.cli_report import map_command, report_command
 from hubnet.cli_sweep import (
     HistoryOption,
@@ -157,6 +158,7 @@ app.command("report")(report_command)
 app.command("sweep")(sweep_command)
 app.command("runs")(runs_command)
 app.command("compare")(compare_command)
+app.command("frontier")(frontier_command)
 
 
 def main() -> None:

@@ -73,7 +73,10 @@ def map_command(
 def report_command(
     run_dirs: Annotated[
         list[Path],
-        typer.Argument(help="Run folders; the others are compared with the first."),
+        typer.Argument(
+            help="Run folders; the others are compared with the first. A frontier folder "
+            "(hubnet frontier) stands for its efficient points."
+        ),
     ],
     out: Annotated[Path, typer.Option("--out", "-o", help="HTML file to write.")] = Path(
         "report.html"
@@ -85,6 +88,7 @@ def report_command(
     verbose: Annotated[bool, typer.Option("--verbose", "-v", help="Show tracebacks.")] = False,
 ) -> None:
     """Write one HTML page comparing run folders side by side, with maps and cautions."""
+    from hubnet.frontier import report_run_dirs
     from hubnet.report.html import write_report
 
     _check_tiles(tiles)
@@ -92,6 +96,7 @@ def report_command(
         _err.print("[bold red]error:[/bold red] give at least one run folder", markup=True)
         raise typer.Exit(EXIT_BAD_INPUT)
     try:
+        run_dirs = report_run_dirs(run_dirs)  # a frontier folder: its efficient points
         path = write_report(run_dirs, out, tiles=tiles, force=force)
     except (HubnetError, OSError) as err:
         _fail(err, verbose)

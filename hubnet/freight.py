@@ -1118,6 +1118,10 @@ def evaluate_freight(
                 vehicle_km=float(sum(n * tables.km[s, t] for n in counts.values())),
                 co2e_ttw_kg=float(sum(n * tables.co2e_ttw_kg[c, s, t] for c, n in counts.items())),
                 co2e_wtw_kg=float(sum(n * tables.co2e_wtw_kg[c, s, t] for c, n in counts.items())),
+                class_cost={tables.classes[c].id: float(got[c][1]) for c in counts},
+                class_drive_h={
+                    tables.classes[c].id: float(tables.drive_h[c, s, t]) for c in counts
+                },
             )
         )
     for key, volume in flows.items():
@@ -1301,6 +1305,7 @@ def solve_freight(
     *,
     scenario: str = "",
     progress: Callable[[str], None] | None = None,
+    start_hubs: Sequence[str] | None = None,
 ) -> Solution:
     """Choose hubs, routes and vehicles for a network with vehicle classes.
 
@@ -1316,6 +1321,9 @@ def solve_freight(
         Freight parameters.
     opts
         Solver choice and limits; ``auto`` means HiGHS here.
+    start_hubs
+        Site ids of an earlier plan's hubs (for example last night's): the
+        solver starts from them instead of the local search.
 
     Raises
     ------
@@ -1346,7 +1354,18 @@ def solve_freight(
         f"terminal-hub allocations ({time.perf_counter() - t1:.1f} s)"
     )
     t1 = time.perf_counter()
-    start = starting_freight_plan(data, st, params, fp, max_seconds=20.0)
+    given = None
+    if start_hubs is not None:
+        unknown = [h for h in start_hubs if h not in data.ids]
+        if unknown:
+            raise InputError(
+                Problem("warm start", None, "hubs", f"unknown hub ids {', '.join(unknown)}")
+            )
+        given = [data.index(h) for h in start_hubs]
+    start = starting_freight_plan(data, st, params, fp, max_seconds=20.0, hubs_given=given)
+    if start is not None and given is None:
+        budget = min(120.0, 0.2 * opts.time_limit_s) if opts.time_limit_s else 120.0
+        start = improve_hubs(data, st, params, fp, start, budget, say)
     if start is not None:
         say(
             f"starting plan: {len(start.hubs)} hubs, "
@@ -1481,13 +1500,19 @@ def _late_count(st: _Setup, assign: np.ndarray, direct_ok: np.ndarray) -> np.nda
 
 
 def starting_freight_plan(
-    data: NetworkData, st: _Setup, params: HubModelParams, fp: FreightParams, max_seconds: float
+    data: NetworkData,
+    st: _Setup,
+    params: HubModelParams,
+    fp: FreightParams,
+    max_seconds: float,
+    hubs_given: Sequence[int] | None = None,
 ) -> FreightPlan | None:
     """A feasible plan to start the solver from, or ``None`` when none is found quickly.
 
-    Hubs and allocation come from the classic model's local search with
-    per-unit costs of full vehicles (the cheapest class per tier, round
-    trip); terminals are then moved between the open hubs until every
+    Hubs and allocation come from ``hubs_given`` (an earlier run's hubs,
+    each terminal with its nearest allowed one) or from the classic model's
+    local search with per-unit costs of full vehicles (the cheapest class
+    per tier, round trip); terminals are then moved between the open hubs until every
     deadline is met (pairs that can go direct on time go direct); each leg
     gets the cheapest whole-vehicle cover of its volume.
     """
@@ -1510,14 +1535,54 @@ def starting_freight_plan(
         distribution_factor=rate("feeder"),
         cost_per_unit_km=1.0,
     )
-    # Allocations the deadlines rule out get a prohibitive length.
-    km = np.where(st.feeder_ok, tables.km, tables.km.max() * 1e6 + 1e6)
-    found = starting_plan(data, km, proxy, max_seconds=max_seconds / 2)
-    ok = found is not None and found[1] is not None
-    if ok:
-        assert found is not None and found[1] is not None
-        hubs, assign = list(found[0]), np.asarray(found[1], dtype=int)
-        ok = bool(st.feeder_ok[np.arange(data.n), assign].all())
+
+    def nearest(hubs: list[int]) -> np.ndarray | None:
+        """Each terminal to its nearest allowed hub with sort capacity left."""
+        near = np.where(st.feeder_ok[:, hubs], tables.km[:, hubs], np.inf)
+        if not np.isfinite(near.min(axis=1)).all():
+            return None
+        if not params.capacitated:
+            return np.asarray(hubs)[np.argmin(near, axis=1)]
+        out_vol = st.w.sum(axis=1)
+        left = np.array(
+            [
+                np.inf if data.sites[k].sort_capacity is None else data.sites[k].sort_capacity
+                for k in hubs
+            ],
+            dtype=float,
+        )
+        got = np.full(data.n, -1)
+        for pos, k in enumerate(hubs):  # a hub sorts its own volume
+            got[k] = k
+            left[pos] -= out_vol[k]
+        for i in np.argsort(-out_vol).tolist():
+            if got[i] >= 0:
+                continue
+            for pos in np.argsort(near[i]).tolist():
+                if np.isfinite(near[i, pos]) and left[pos] >= out_vol[i] - 1e-9:
+                    got[i] = hubs[pos]
+                    left[pos] -= out_vol[i]
+                    break
+            else:
+                return None
+        return got if (left >= -1e-9).all() else None
+
+    ok = False
+    if hubs_given is not None:
+        hubs = [k for k in hubs_given if st.feeder_ok[k, k]]
+        got = nearest(hubs) if hubs else None
+        if got is None:
+            return None
+        assign, ok = got, True
+    if not ok:
+        # Allocations the deadlines rule out get a prohibitive length.
+        km = np.where(st.feeder_ok, tables.km, tables.km.max() * 1e6 + 1e6)
+        found = starting_plan(data, km, proxy, max_seconds=max_seconds / 4)
+        ok = found is not None and found[1] is not None
+        if ok:
+            assert found is not None and found[1] is not None
+            hubs, assign = list(found[0]), np.asarray(found[1], dtype=int)
+            ok = bool(st.feeder_ok[np.arange(data.n), assign].all())
     if not ok and params.hubs is None:
         # Every hub that may open, each terminal with its nearest allowed hub.
         hubs = [k for k in st.cand if st.feeder_ok[k, k]]
@@ -1617,3 +1682,72 @@ def set_start(model: FreightModel, plan: FreightPlan) -> None:
         v.setInitialValue(plan.dispatches.get(key, 0.0))
     for pair, v in model.all_direct.items():
         v.setInitialValue(1 if plan.direct.get(pair, 0.0) >= 1.0 else 0)
+
+
+def improve_hubs(
+    data: NetworkData,
+    st: _Setup,
+    params: HubModelParams,
+    fp: FreightParams,
+    start: FreightPlan,
+    max_seconds: float,
+    progress: Callable[[str], None] | None = None,
+) -> FreightPlan:
+    """Local search over hub sets (drop, swap, add), each priced as a whole freight plan.
+
+    A hub set is priced by :func:`starting_freight_plan` (allocation,
+    deadlines, direct lanes, whole-vehicle covers) and
+    :func:`evaluate_freight`. First improvement; stops after
+    ``max_seconds``. Returns the best plan found (``start`` if none is
+    better).
+    """
+    stats = SolveStats("none", "time_limit", None, None, None, 0.0, 0.0, "local search")
+    t_end = time.perf_counter() + max_seconds
+
+    def price(hubs: Sequence[int]) -> tuple[float, FreightPlan | None]:
+        plan = starting_freight_plan(data, st, params, fp, max_seconds=2.0, hubs_given=hubs)
+        if plan is None or (params.hubs is not None and len(plan.hubs) != params.hubs):
+            return math.inf, None
+        if any(data.sites[k].hub_status == "open" and k not in plan.hubs for k in st.cand):
+            return math.inf, None
+        try:
+            sol = evaluate_freight(data, st, params, fp, plan, stats)
+        except SolverError:
+            return math.inf, None
+        return sol.costs["total"], plan
+
+    best_cost, best = price(start.hubs)
+    if best is None:
+        return start
+    openable = [k for k in st.cand if st.feeder_ok[k, k]]
+    forced = {k for k in st.cand if data.sites[k].hub_status == "open"}
+    improved = True
+    rounds = 0
+    while improved and time.perf_counter() < t_end:
+        improved = False
+        rounds += 1
+        current = list(best.hubs)
+        moves: list[list[int]] = []
+        if params.hubs is None:
+            moves += [[h for h in current if h != out] for out in current if out not in forced]
+        moves += [
+            [h for h in current if h != out] + [inn]
+            for out in current
+            if out not in forced
+            for inn in openable
+            if inn not in current
+        ]
+        if params.hubs is None:
+            moves += [current + [inn] for inn in openable if inn not in current]
+        for move in moves:
+            if time.perf_counter() > t_end:
+                break
+            if not move:
+                continue
+            cost, plan = price(sorted(move))
+            if plan is not None and cost < best_cost - 1e-6 * abs(best_cost):
+                best_cost, best, improved = cost, plan, True
+                if progress is not None:
+                    progress(f"local search: {len(plan.hubs)} hubs, cost {cost:,.2f}")
+                break
+    return best

@@ -37,7 +37,7 @@ from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
 
-from hubnet.config import ScenarioConfig
+from hubnet.config import BUILT_IN_HOURS_RULES, ScenarioConfig
 from hubnet.errors import HubnetError
 
 #: Environment variable naming the history file or URL (``off`` disables it).
@@ -112,12 +112,19 @@ def input_hashes(config: ScenarioConfig) -> dict[str, dict[str, str]]:
     -------
     dict
         ``{"sites": {"path": ..., "sha256": ...}, "demand": ..., "distances": ...}``
-        (``distances`` only when a matrix file is given). A file that
-        cannot be read gets ``sha256 = "unreadable"``.
+        (``distances`` only when a matrix file is given). A freight scenario
+        (``inputs.vehicles`` set) adds ``vehicles``, and ``hours_rules`` when
+        ``hours.rules`` names a rule file rather than a built-in rule set. A
+        file that cannot be read gets ``sha256 = "unreadable"``.
     """
     files = {"sites": config.inputs.sites, "demand": config.inputs.demand}
     if config.inputs.distances is not None:
         files["distances"] = config.inputs.distances
+    if config.inputs.vehicles is not None:
+        files["vehicles"] = config.inputs.vehicles
+        rules = _rules_file(config)
+        if rules is not None:
+            files["hours_rules"] = rules
     out: dict[str, dict[str, str]] = {}
     for role, path in files.items():
         try:
@@ -128,29 +135,44 @@ def input_hashes(config: ScenarioConfig) -> dict[str, dict[str, str]]:
     return out
 
 
+def _rules_file(config: ScenarioConfig) -> Path | None:
+    """The drivers' hours rule file of a config, ``None`` for a built-in rule set."""
+    rules = config.freight.hours.rules
+    if rules.strip().lower() in BUILT_IN_HOURS_RULES:
+        return None
+    return Path(rules)
+
+
 def settings_dict(config: ScenarioConfig, edits: Mapping[str, Any] | None = None) -> dict[str, Any]:
     """The settings that decide a plan, apart from the input files' contents.
 
     Names, descriptions and file paths are left out (the files are hashed
     separately by :func:`input_hashes`), so two runs of the same settings
-    on the same data hash alike wherever their files live.
+    on the same data hash alike wherever their files live. A freight
+    scenario (``inputs.vehicles`` set) adds ``freight``: every freight
+    parameter (service times, drivers' hours, costs of time and carbon),
+    with a rule file's path replaced by ``"file"``.
     """
     from hubnet.report.summary import jsonable
 
     inp = config.inputs
-    return jsonable(
-        {
-            "inputs": {
-                "volume_unit": inp.volume_unit,
-                "allow_same_site_demand": inp.allow_same_site_demand,
-                "sheet": inp.sheet,
-            },
-            "distances": asdict(config.distances),
-            "model": asdict(config.model),
-            "solver": asdict(config.solver),
-            "edits": dict(edits or {}),
-        }
-    )
+    settings: dict[str, Any] = {
+        "inputs": {
+            "volume_unit": inp.volume_unit,
+            "allow_same_site_demand": inp.allow_same_site_demand,
+            "sheet": inp.sheet,
+        },
+        "distances": asdict(config.distances),
+        "model": asdict(config.model),
+        "solver": asdict(config.solver),
+        "edits": dict(edits or {}),
+    }
+    if inp.vehicles is not None:
+        freight = asdict(config.freight)
+        if _rules_file(config) is not None:
+            freight["hours"]["rules"] = "file"
+        settings["freight"] = freight
+    return jsonable(settings)
 
 
 def config_hash(config: ScenarioConfig, edits: Mapping[str, Any] | None = None) -> str:
@@ -203,7 +225,10 @@ class RunRecord:
         Open hubs (ids).
     kpis
         Headline figures: ``costs`` by component, ``total_volume``,
-        ``unit_km``, ``legs_by_tier``, ``od_pairs``, ``volume_unit``.
+        ``unit_km``, ``legs_by_tier``, ``od_pairs``, ``volume_unit``; for
+        a freight run also :data:`FREIGHT_KPIS` (vehicles, vehicle-km per
+        day, average and longest transit hours, on-time share, CO2e kg per
+        day).
     config_hash, inputs
         Hash of the settings (:func:`config_hash`) and of every input file
         (:func:`input_hashes`).
@@ -306,9 +331,22 @@ def run_info(
     )
 
 
+#: Key figures of freight runs kept in the history when the summary has them.
+FREIGHT_KPIS: tuple[str, ...] = (
+    "vehicles",
+    "vehicle_km",
+    "avg_transit_h",
+    "max_transit_h",
+    "service_level",
+    "co2e_kg",
+)
+
+
 def _kpis(summary: Mapping[str, Any]) -> dict[str, Any]:
     keys = ("costs", "total_volume", "unit_km", "legs_by_tier", "od_pairs", "volume_unit")
-    return {k: summary.get(k) for k in keys}
+    out = {k: summary.get(k) for k in keys}
+    out.update({k: summary[k] for k in FREIGHT_KPIS if k in summary})
+    return out
 
 
 def read_json(path: Path) -> dict[str, Any]:

@@ -5,12 +5,18 @@ and the scenarios to run against it; each scenario is a set of changes:
 
 - **config keys**, as in a config file (``[scenarios.NAME.model]`` with
   ``hubs = 3``, or the dotted form ``"model.hubs" = 3``): number of hubs,
-  allocation rule, cost per unit-km, solver options, another input file;
+  allocation rule, cost per unit-km, solver options, another input file,
+  and for the freight model the ``[service]``, ``[hours]`` and
+  ``[freight]`` keys (default cut-off and deadline, drivers' hours,
+  carbon price...);
 - **data edits**, applied in memory to the validated network (never by
   writing changed input files): demand scaled as a whole, by site, by
   origin, by destination or by OD pair; hub fixed, handling and transport
   costs scaled or set; sort capacities; hubs closed, forced open, or sites
-  added as candidate hubs.
+  added as candidate hubs; and for the freight model: vehicle classes
+  removed or added, their costs per vehicle-km (fuel price) and per hour
+  (driver wage) scaled, a site's cut-off, delivery deadline or sort time
+  and an OD pair's transit allowance set.
 
 A ``[grid]`` table expands into one scenario per combination of values.
 
@@ -50,42 +56,92 @@ A ``[grid]`` table expands into one scenario per combination of values.
     [grid]
     "model.hubs" = [2, 3, 4]      # scenarios hubs-2, hubs-3, hubs-4
 
+On a freight base (a config with ``inputs.vehicles``, here
+``national_small.toml``), scenarios may also change the fleet, its costs
+and the deadlines; these edits are an error on a classic base, and
+``transport_cost_scale`` is one on a freight base (the freight model prices
+vehicles, not unit-km):
+
+.. code-block:: toml
+
+    [scenarios.fuel-and-wages]
+    vehicle_km_cost_scale = 1.12                   # every class's cost per km
+    vehicle_hour_cost_scale_by_class = { A40 = 1.05 }
+
+    [scenarios.road-trains]                        # one class out, one in
+    remove_vehicle_classes = ["R75"]
+
+    [scenarios.road-trains.add_vehicle_classes.T60]
+    payload = 52                                   # fields as in vehicles.csv
+    cost_per_km = 1.05
+    cost_per_hour = 40
+    speed_kmh = 70
+    tiers = ["trunk"]                              # or "trunk direct"
+    fuel_l_per_100km = 45
+
+    [scenarios.later-cutoff]
+    cutoff = { PAR = "20:30" }                     # as the sites file's cutoff column
+    deliver_by = { LYO = "06:30" }
+    max_hours = { "PAR>MAR" = 30 }                 # as the demand file's max_hours
+
+    [scenarios.carbon-80]
+    freight = { carbon_price_per_t = 80 }          # also [service] and [hours] keys
+
 Scenario names become run folder names: letters, digits, ``.``, ``_`` and
 ``-`` only. The first scenario is the reference the comparison table
 measures the others against.
 
 Every scenario is checked before any is solved (:func:`check_sweep`), with
 messages naming the sweep file, its line and the key, as for config files.
-The format is versioned (``[sweep] format = 1``); later versions add keys
-(vehicle classes, deadlines) without changing the meaning of these.
+The format is versioned (``[sweep] format = 1``). Keys added since (the
+freight what-ifs) do not change the meaning of the others; the number
+changes only when the meaning of a key does.
 """
 
 from __future__ import annotations
 
 import copy
 import dataclasses
+import datetime
 import difflib
 import functools
 import itertools
+import math
 import re
 import tomllib
 from collections.abc import Callable, Collection, Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import Annotated, Any
 
-from pydantic import BaseModel, ConfigDict, Field, ValidationError
+from pydantic import BaseModel, BeforeValidator, ConfigDict, Field, ValidationError
+from pydantic_core import PydanticCustomError
 
-from hubnet.config import ScenarioConfig, load_config
+from hubnet.config import (
+    BUILT_IN_HOURS_RULES,
+    CLOCK_EXPECT,
+    ScenarioConfig,
+    clock_hours,
+    load_config,
+)
 from hubnet.data import NetworkData
 from hubnet.errors import InputError, Problem
+from hubnet.fleet import TIERS, Tier, VehicleClass
 
 #: Config sections a scenario may change (``[scenario]`` is set by hubnet).
-CONFIG_SECTIONS: tuple[str, ...] = ("inputs", "distances", "model", "solver")
+CONFIG_SECTIONS: tuple[str, ...] = (
+    "inputs",
+    "distances",
+    "model",
+    "solver",
+    "service",
+    "hours",
+    "freight",
+)
 #: The one sweep file format version this hubnet reads.
 SWEEP_FORMAT = 1
 #: Input keys holding file paths: resolved against the sweep file's folder.
-_PATH_KEYS = ("sites", "demand", "distances")
+_PATH_KEYS = ("sites", "demand", "distances", "vehicles")
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,79}$")
 
 Locate = Callable[[str], int | None]
@@ -106,6 +162,144 @@ class NewCandidate(_Strict):
     hub_fixed_cost: float = Field(ge=0)
     handling_cost: float = Field(default=0.0, ge=0)
     sort_capacity: float | None = Field(default=None, gt=0)
+
+
+#: Error type of a check whose message quotes the wrong value (not echoed again).
+_NAMED = "hubnet_value_named"
+
+
+def _named(message: str) -> PydanticCustomError:
+    """A validation error whose message already names the value."""
+    return PydanticCustomError(_NAMED, "{message}", {"message": message})
+
+
+def _tiers(value: Any) -> tuple[Tier, ...]:
+    """The ``tiers`` of an added vehicle class: a list, or text as in vehicles.csv."""
+    from hubnet.inputs import _split_tiers, _tier_problem
+
+    if isinstance(value, str):
+        why = _tier_problem(value)
+        if why is not None:
+            raise _named(why)
+        words = _split_tiers(value)
+    elif isinstance(value, list | tuple) and value and all(isinstance(v, str) for v in value):
+        words = [w for v in value for w in _split_tiers(v)]
+        why = _tier_problem(" ".join(words))
+        if why is not None:
+            raise _named(why)
+    else:
+        raise ValueError(
+            'expected a list of tiers such as ["feeder", "trunk"] (any of '
+            f"{', '.join(TIERS)}), or text as in vehicles.csv"
+        )
+    return tuple(t for t in TIERS if t in words)
+
+
+def _speed(value: Any) -> Any:
+    """Check a speed as vehicles.csv does (numbers only; the type is left to pydantic)."""
+    from hubnet.inputs import MAX_SPEED_KMH
+
+    if isinstance(value, int | float) and not isinstance(value, bool):
+        if not (math.isfinite(value) and 0 < value <= MAX_SPEED_KMH):
+            raise ValueError(f"expected a speed in km/h above 0 and at most {MAX_SPEED_KMH:g}")
+    return value
+
+
+def _fuel(value: Any) -> Any:
+    """A fuel of the bundled emission factor table, spelt as the table spells it."""
+    from hubnet.emissions import load_fuels
+
+    if not isinstance(value, str):
+        return value  # pydantic reports the type
+    fuels = list(load_fuels())
+    by_name = {f.casefold(): f for f in fuels}
+    found = by_name.get(value.strip().casefold())
+    if found is None:
+        raise _named(
+            f"unknown fuel {value!r}; the emission factor table has {', '.join(fuels)}"
+            f"{_hint(value, fuels)}"
+        )
+    return found
+
+
+class NewVehicleClass(_Strict):
+    """A vehicle class added by a scenario; fields, units and checks as in vehicles.csv.
+
+    Attributes
+    ----------
+    name
+        Display name; default the class id (the key it is given under).
+    payload
+        Volume units one vehicle carries, > 0.
+    cost_per_km, cost_per_hour, cost_per_dispatch
+        Currency per vehicle-km, per hour on the road, per dispatch, >= 0.
+    speed_kmh
+        Average road speed, km/h, above 0 and at most 150.
+    tiers
+        Any of ``feeder``, ``trunk``, ``direct``: a list, or text as in the
+        ``tiers`` column (``"feeder trunk"``).
+    max_kg, max_m3
+        Optional weight (kg) and cubic (m3) limits, > 0.
+    fuel_l_per_100km
+        Litres per 100 vehicle-km, >= 0.
+    fuel
+        A fuel of the emission factor table (default ``diesel``).
+    """
+
+    name: str | None = Field(default=None, min_length=1)
+    payload: float = Field(gt=0, allow_inf_nan=False)
+    cost_per_km: float = Field(ge=0, allow_inf_nan=False)
+    speed_kmh: Annotated[float, BeforeValidator(_speed)]
+    tiers: Annotated[tuple[Tier, ...], BeforeValidator(_tiers)]
+    cost_per_hour: float = Field(default=0.0, ge=0, allow_inf_nan=False)
+    cost_per_dispatch: float = Field(default=0.0, ge=0, allow_inf_nan=False)
+    max_kg: float | None = Field(default=None, gt=0, allow_inf_nan=False)
+    max_m3: float | None = Field(default=None, gt=0, allow_inf_nan=False)
+    fuel_l_per_100km: float = Field(default=0.0, ge=0, allow_inf_nan=False)
+    fuel: Annotated[str, BeforeValidator(_fuel)] = "diesel"
+
+    def vehicle_class(self, class_id: str) -> VehicleClass:
+        """The class as the freight model takes it."""
+        return VehicleClass(
+            id=class_id,
+            name=self.name or class_id,
+            payload=self.payload,
+            cost_per_km=self.cost_per_km,
+            speed_kmh=self.speed_kmh,
+            tiers=frozenset(self.tiers),
+            cost_per_hour=self.cost_per_hour,
+            cost_per_dispatch=self.cost_per_dispatch,
+            max_kg=self.max_kg,
+            max_m3=self.max_m3,
+            fuel_l_per_100km=self.fuel_l_per_100km,
+            fuel=self.fuel,
+        )
+
+
+def _clock_text(value: Any) -> str:
+    """A time of day as in the sites file's cutoff and deliver_by columns, as ``HH:MM``.
+
+    Text is checked and kept in a standard form (so run records show it as
+    written); a TOML local time (``20:30:00`` unquoted) becomes text.
+    """
+    if isinstance(value, datetime.time):
+        value = value.strftime("%H:%M:%S" if value.second else "%H:%M")
+    if not isinstance(value, str):
+        raise ValueError(f'expected {CLOCK_EXPECT}, written as text such as "18:00"')
+    hours = clock_hours(value)
+    minutes, seconds = divmod(round(hours * 3600), 60)
+    text = f"{minutes // 60:02d}:{minutes % 60:02d}"
+    return text + (f":{seconds:02d}" if seconds else "")
+
+
+def _clocks(value: Any) -> Any:
+    """Site id to time of day; a single time is pointed to the service defaults."""
+    if isinstance(value, str | datetime.time):
+        raise ValueError(
+            'expected a table of site ids and times, such as { PAR = "20:00" }; the '
+            "default of every site without its own time is a config key of [service]"
+        )
+    return value
 
 
 class DataEdits(_Strict):
@@ -140,6 +334,29 @@ class DataEdits(_Strict):
     add_candidates
         Sites that become candidate hubs, with their hub figures.
 
+    The freight model's edits (the network must have vehicle classes):
+
+    remove_vehicle_classes
+        Vehicle class ids taken out of the fleet. Classes allowed on feeder
+        and on trunk legs must remain.
+    add_vehicle_classes
+        New vehicle classes by id (:class:`NewVehicleClass`). An id also
+        removed is replaced by the new class.
+    vehicle_km_cost_scale, vehicle_km_cost_scale_by_class
+        Factor on every class's cost per vehicle-km (fuel price), and per
+        class id; both multiply, added classes included.
+    vehicle_hour_cost_scale, vehicle_hour_cost_scale_by_class
+        The same on the cost per hour on the road (driver wage). The second
+        driver's cost and the relay cost are ``[hours]`` config keys.
+    cutoff, deliver_by
+        New collection cut-off and delivery deadline per site id (times of
+        day ``"HH:MM"``, as in the sites file).
+    sort_hours
+        New sort time per candidate hub id, hours >= 0.
+    max_hours
+        New transit allowance per OD pair ``"ORIGIN>DESTINATION"``, hours
+        > 0 (as the demand file's ``max_hours``).
+
     Factors are dimensionless and applied in the order listed; every
     factor on demand multiplies.
     """
@@ -160,6 +377,20 @@ class DataEdits(_Strict):
     close_hubs: list[str] = Field(default_factory=list)
     open_hubs: list[str] = Field(default_factory=list)
     add_candidates: dict[str, NewCandidate] = Field(default_factory=dict)
+    remove_vehicle_classes: list[str] = Field(default_factory=list)
+    add_vehicle_classes: dict[str, NewVehicleClass] = Field(default_factory=dict)
+    vehicle_km_cost_scale: float | None = Field(default=None, ge=0, allow_inf_nan=False)
+    vehicle_km_cost_scale_by_class: dict[str, float] = Field(default_factory=dict)
+    vehicle_hour_cost_scale: float | None = Field(default=None, ge=0, allow_inf_nan=False)
+    vehicle_hour_cost_scale_by_class: dict[str, float] = Field(default_factory=dict)
+    cutoff: Annotated[
+        dict[str, Annotated[str, BeforeValidator(_clock_text)]], BeforeValidator(_clocks)
+    ] = Field(default_factory=dict)
+    deliver_by: Annotated[
+        dict[str, Annotated[str, BeforeValidator(_clock_text)]], BeforeValidator(_clocks)
+    ] = Field(default_factory=dict)
+    sort_hours: dict[str, float] = Field(default_factory=dict)
+    max_hours: dict[str, float] = Field(default_factory=dict)
 
     def as_dict(self) -> dict[str, Any]:
         """The edits given, as plain data (for run records and hashing)."""
@@ -172,6 +403,24 @@ class DataEdits(_Strict):
 
 
 EDIT_KEYS: tuple[str, ...] = tuple(DataEdits.model_fields)
+#: Edits holding tables of figures per new site or class (for messages).
+_NESTED: dict[str, type[BaseModel]] = {
+    "add_candidates": NewCandidate,
+    "add_vehicle_classes": NewVehicleClass,
+}
+#: Edits of the freight model: they need a network with vehicle classes.
+FREIGHT_EDIT_KEYS: tuple[str, ...] = (
+    "remove_vehicle_classes",
+    "add_vehicle_classes",
+    "vehicle_km_cost_scale",
+    "vehicle_km_cost_scale_by_class",
+    "vehicle_hour_cost_scale",
+    "vehicle_hour_cost_scale_by_class",
+    "cutoff",
+    "deliver_by",
+    "sort_hours",
+    "max_hours",
+)
 
 
 def parse_edits(
@@ -205,9 +454,15 @@ def parse_edits(
             key = loc[0] if loc else ""
             if e["type"] == "extra_forbidden" and len(loc) == 1:
                 message = f"unknown key {key!r}{_hint(key, (*EDIT_KEYS, *CONFIG_SECTIONS))}"
+            elif e["type"] == "extra_forbidden" and len(loc) == 3 and key in _NESTED:
+                known = tuple(_NESTED[key].model_fields)
+                hint = _hint(loc[2], known) or f"; known keys: {', '.join(known)}"
+                message = f"{loc[1]}: unknown key {loc[2]!r}{hint}"
+            elif e["type"] == "missing" and len(loc) > 1:
+                message = f"{'.'.join(loc[1:])}: required key is missing"
             else:
                 message = e["msg"].replace("Value error, ", "")
-                if not isinstance(e.get("input"), Mapping):
+                if not isinstance(e.get("input"), Mapping) and e["type"] != _NAMED:
                     message += f", got {e.get('input')!r}"
                 if len(loc) > 1:
                     message = f"{'.'.join(loc[1:])}: {message}"
@@ -223,9 +478,12 @@ def parse_edits(
         "demand_scale_by_region",
         "hub_fixed_cost",
         "handling_cost",
+        "vehicle_km_cost_scale_by_class",
+        "vehicle_hour_cost_scale_by_class",
+        "sort_hours",
     ):
         for site, value in getattr(edits, key).items():
-            if not value >= 0:
+            if not (math.isfinite(value) and value >= 0):
                 problems.append(
                     Problem(
                         file,
@@ -234,16 +492,17 @@ def parse_edits(
                         f"{site}: expected a number >= 0, got {value!r}",
                     )
                 )
-    for site, value in edits.sort_capacity.items():
-        if not value > 0:
-            problems.append(
-                Problem(
-                    file,
-                    locate("sort_capacity") if locate else None,
-                    prefix + "sort_capacity",
-                    f"{site}: expected a number > 0, got {value!r}",
+    for key in ("sort_capacity", "max_hours"):
+        for site, value in getattr(edits, key).items():
+            if not value > 0 or (key == "max_hours" and not math.isfinite(value)):
+                problems.append(
+                    Problem(
+                        file,
+                        locate(key) if locate else None,
+                        prefix + key,
+                        f"{site}: expected a number > 0, got {value!r}",
+                    )
                 )
-            )
     if problems:
         raise InputError(problems)
     return edits
@@ -334,25 +593,48 @@ def apply_data_edits(
         "close_hubs",
         "open_hubs",
         "add_candidates",
+        "cutoff",
+        "deliver_by",
+        "sort_hours",
     ):
         check_sites(key, list(getattr(edits, key)))
 
-    # Demand.
-    pairs: dict[tuple[str, str], float] = {}
-    have = {(d.origin, d.destination) for d in data.demand}
-    for text, factor in edits.demand_scale_by_pair.items():
-        parts = [p.strip() for p in text.split(">")]
-        if len(parts) != 2 or not all(parts):
-            bad("demand_scale_by_pair", f"{text!r}: write an OD pair as 'ORIGIN>DESTINATION'")
-            continue
-        origin, destination = parts
-        check_sites("demand_scale_by_pair", parts)
-        if {origin, destination} <= known and (origin, destination) not in have:
+    # The freight model's edits need vehicle classes.
+    freight_keys = [k for k in FREIGHT_EDIT_KEYS if getattr(edits, k) not in (None, [], {})]
+    if not data.vehicles:
+        for key in freight_keys:
             bad(
-                "demand_scale_by_pair",
-                f"{text!r}: there is no demand from {origin} to {destination}",
+                key,
+                "the base has no vehicle classes (its config names no inputs.vehicles "
+                "file): this edit changes the freight model only",
             )
-        pairs[(origin, destination)] = factor
+    elif edits.transport_cost_scale is not None:
+        bad(
+            "transport_cost_scale",
+            "the freight model prices vehicles, not unit-km (model.cost_per_unit_km is not "
+            "used): scale vehicle costs with vehicle_km_cost_scale or vehicle_hour_cost_scale",
+        )
+    use_freight = bool(data.vehicles)
+
+    # Demand.
+    have = {(d.origin, d.destination) for d in data.demand}
+
+    def od_pairs(key: str, values: Mapping[str, float]) -> dict[tuple[str, str], float]:
+        out: dict[tuple[str, str], float] = {}
+        for text, value in values.items():
+            parts = [p.strip() for p in text.split(">")]
+            if len(parts) != 2 or not all(parts):
+                bad(key, f"{text!r}: write an OD pair as 'ORIGIN>DESTINATION'")
+                continue
+            origin, destination = parts
+            check_sites(key, parts)
+            if {origin, destination} <= known and (origin, destination) not in have:
+                bad(key, f"{text!r}: there is no demand from {origin} to {destination}")
+            out[(origin, destination)] = value
+        return out
+
+    pairs = od_pairs("demand_scale_by_pair", edits.demand_scale_by_pair)
+    max_hours = od_pairs("max_hours", edits.max_hours) if use_freight else {}
     region_of = {site.id: site.region for site in data.sites}
     known_regions = sorted({r for r in region_of.values() if r})
     for name in edits.demand_scale_by_region:
@@ -375,7 +657,10 @@ def apply_data_edits(
         f *= edits.demand_scale_by_origin.get(d.origin, 1.0)
         f *= edits.demand_scale_by_destination.get(d.destination, 1.0)
         f *= pairs.get((d.origin, d.destination), 1.0)
-        demand.append(d if f == 1.0 else dataclasses.replace(d, volume=d.volume * f))
+        new_d = d if f == 1.0 else dataclasses.replace(d, volume=d.volume * f)
+        if (d.origin, d.destination) in max_hours:
+            new_d = dataclasses.replace(new_d, max_hours=max_hours[(d.origin, d.destination)])
+        demand.append(new_d)
 
     # Sites.
     both = sorted(set(edits.close_hubs) & set(edits.open_hubs))
@@ -414,6 +699,18 @@ def apply_data_edits(
                 if not site.is_candidate:
                     bad(key, f"site {s.id!r} is not a candidate hub (add it with add_candidates)")
                 changes[column] = values[s.id]
+        if use_freight:
+            if s.id in edits.cutoff:
+                changes["cutoff_h"] = clock_hours(edits.cutoff[s.id])
+            if s.id in edits.deliver_by:
+                changes["deliver_by_h"] = clock_hours(edits.deliver_by[s.id])
+            if s.id in edits.sort_hours:
+                if not site.is_candidate:
+                    bad(
+                        "sort_hours",
+                        f"site {s.id!r} is not a candidate hub (add it with add_candidates)",
+                    )
+                changes["sort_hours"] = edits.sort_hours[s.id]
         if s.id in edits.close_hubs:
             if not site.is_candidate:
                 bad("close_hubs", f"site {s.id!r} is not a candidate hub: nothing to close")
@@ -426,9 +723,67 @@ def apply_data_edits(
                 )
             changes["hub_status"] = "open"
         sites.append(dataclasses.replace(site, **changes) if changes else site)
+    vehicles = _edit_vehicles(data.vehicles, edits, bad) if use_freight else data.vehicles
     if problems:
         raise InputError(problems)
-    return dataclasses.replace(data, sites=tuple(sites), demand=tuple(demand))
+    return dataclasses.replace(
+        data, sites=tuple(sites), demand=tuple(demand), vehicles=tuple(vehicles)
+    )
+
+
+def _edit_vehicles(
+    classes: Sequence[VehicleClass], edits: DataEdits, bad: Callable[[str, str], None]
+) -> list[VehicleClass]:
+    """The vehicle classes with a scenario's removals, additions and cost factors."""
+    from hubnet.inputs import _NEEDED_TIERS
+
+    ids = [v.id for v in classes]
+
+    def unknown(key: str, class_id: str, among: Sequence[str]) -> None:
+        hint = _hint(class_id, among) or f"; the classes are {', '.join(among)}"
+        bad(key, f"unknown vehicle class {class_id!r}{hint}")
+
+    removed = set(edits.remove_vehicle_classes)
+    for class_id in edits.remove_vehicle_classes:
+        if class_id not in ids:
+            unknown("remove_vehicle_classes", class_id, ids)
+    out = [v for v in classes if v.id not in removed]
+    for class_id, new in edits.add_vehicle_classes.items():
+        if any(v.id == class_id for v in out):
+            bad(
+                "add_vehicle_classes",
+                f"vehicle class {class_id!r} exists; to replace it, also list it in "
+                "remove_vehicle_classes",
+            )
+            continue
+        out.append(new.vehicle_class(class_id))
+    left = [v.id for v in out]
+    for key in ("vehicle_km_cost_scale_by_class", "vehicle_hour_cost_scale_by_class"):
+        for class_id in getattr(edits, key):
+            if class_id in removed and class_id not in left:
+                bad(key, f"vehicle class {class_id!r} is removed by remove_vehicle_classes")
+            elif class_id not in left:
+                unknown(key, class_id, left)
+    if edits.remove_vehicle_classes:
+        for tier, legs in _NEEDED_TIERS:
+            if not any(tier in v.tiers for v in out):
+                bad(
+                    "remove_vehicle_classes",
+                    f"no vehicle class left may run on {legs}: keep a class with {tier!r} "
+                    "in its tiers, or add one with add_vehicle_classes",
+                )
+    km_all = 1.0 if edits.vehicle_km_cost_scale is None else edits.vehicle_km_cost_scale
+    hour_all = 1.0 if edits.vehicle_hour_cost_scale is None else edits.vehicle_hour_cost_scale
+    scaled = []
+    for v in out:
+        km = km_all * edits.vehicle_km_cost_scale_by_class.get(v.id, 1.0)
+        hour = hour_all * edits.vehicle_hour_cost_scale_by_class.get(v.id, 1.0)
+        if km != 1.0 or hour != 1.0:
+            v = dataclasses.replace(
+                v, cost_per_km=v.cost_per_km * km, cost_per_hour=v.cost_per_hour * hour
+            )
+        scaled.append(v)
+    return scaled
 
 
 # --------------------------------------------------------------------------
@@ -530,7 +885,8 @@ def _key_lines(text: str) -> dict[tuple[str, ...], int]:
             path = _key_path(m.group(1))
             if path is not None:
                 table = path
-                out.setdefault(table, number)
+                for n in range(1, len(table) + 1):  # [a.b.c] also defines a.b
+                    out.setdefault(table[:n], number)
             continue
         lhs = _left_of_equals(stripped)
         if lhs is None:
@@ -622,10 +978,14 @@ def _split_changes(
                 continue
             leaves = _flatten({key: value})
             for path, leaf in leaves.items():
-                if path[0] == "inputs" and len(path) == 2 and path[1] in _PATH_KEYS:
-                    if isinstance(leaf, str):
-                        p = Path(leaf).expanduser()
-                        leaf = str(p if p.is_absolute() else (sweep_dir / p).absolute())
+                is_file = path[0] == "inputs" and len(path) == 2 and path[1] in _PATH_KEYS
+                if path == ("hours", "rules") and isinstance(leaf, str):
+                    is_file = (
+                        bool(leaf.strip()) and leaf.strip().lower() not in BUILT_IN_HOURS_RULES
+                    )
+                if is_file and isinstance(leaf, str):
+                    p = Path(leaf).expanduser()
+                    leaf = str(p if p.is_absolute() else (sweep_dir / p).absolute())
                 node = overrides
                 for part in path[:-1]:
                     node = node.setdefault(part, {})

@@ -145,6 +145,10 @@ class Leg:
         Freight model: vehicle-km per day on this direction.
     co2e_ttw_kg, co2e_wtw_kg
         Freight model: tank-to-wheel and well-to-wheel CO2e, kg per day.
+    class_cost, class_drive_h
+        Freight model, by vehicle class id: the class's share of ``cost``
+        (its own dispatches' cost, currency per day) and the driving hours
+        of one of its runs.
     """
 
     tier: Tier
@@ -162,6 +166,8 @@ class Leg:
     vehicle_km: float | None = None
     co2e_ttw_kg: float | None = None
     co2e_wtw_kg: float | None = None
+    class_cost: Mapping[str, float] = field(default_factory=dict)
+    class_drive_h: Mapping[str, float] = field(default_factory=dict)
 
     @property
     def fill(self) -> float | None:

@@ -31,6 +31,7 @@ from typing import Any
 
 import pandas as pd
 import pytest
+from freightdata import freight_run
 from reportdata import SCENARIO_NAME, SITES, XSS_NAME, tiny_run
 
 from hubnet.api import run_scenario
@@ -466,3 +467,41 @@ def test_demo_map_and_report(browser: Any, demo: Path, tmp_path: Path) -> None:
     browser.switch_to.default_content()
     assert console_errors(browser, allowed_hosts=TILE_HOSTS) == []
     screenshot(browser, "report-demo.png", full_page=True)
+
+
+# --------------------------------------------------------------------------
+# A freight run: vehicle classes on the legs
+# --------------------------------------------------------------------------
+
+
+@pytest.fixture(scope="module")
+def freight(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    return freight_run(tmp_path_factory.mktemp("freight")).folder
+
+
+def test_freight_map_one_line_per_row_and_class_popups(browser: Any, freight: Path) -> None:
+    open_page(browser, freight / "map.html")
+    legs = pd.read_csv(freight / "legs.csv", dtype={"from_site": str, "to_site": str})
+    assert count(browser, "path.hubnet-leg") == len(legs)
+    empty = int((legs["volume_per_day"] == 0).sum())
+    assert empty > 0 and count(browser, "path.hubnet-empty") == empty
+    # a leg run by both classes: its popup names them and counts each
+    row = int(legs.index[legs["vehicle_class"] == "artic+van"][0])
+    leg = legs.iloc[row]
+    dispatches = pd.read_csv(freight / "dispatches.csv")
+    own = dispatches[
+        (dispatches["origin"] == leg["from_site"])
+        & (dispatches["destination"] == leg["to_site"])
+        & (dispatches["tier"] == leg["tier"])
+    ]
+    click_element(browser, browser.find_element("css selector", f"path.hubnet-row-{row}"))
+    heading, rows = popup_rows(browser)
+    assert heading.startswith(f"{leg['from_site']} ")
+    assert rows["Vehicle class"] == "artic+van"
+    by_class = rows["Dispatches by class"]
+    for cls, n in zip(own["vehicle_class"], own["dispatches"], strict=True):
+        assert f"{n:,.0f} × {cls}" in by_class
+    assert rows["Fill"] == f"{100 * leg['fill']:.1f} %"
+    close_popup(browser)
+    assert console_errors(browser, allowed_hosts=TILE_HOSTS) == []
+    screenshot(browser, "map-freight.png")

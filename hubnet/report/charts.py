@@ -2,9 +2,11 @@
 
 Two charts compare runs: :func:`grouped_bars` (cost per day by tier, one bar
 per run in each group) and :func:`rank_size_plot` (leg volume against rank
-on log–log axes, one series per run). Both return an ``<svg>`` element as a
-string, sized by a ``viewBox`` so it scales with the page; every text in it
-is escaped. Colours come from :data:`hubnet.report.fmt.RUN_COLOURS`.
+on log–log axes, one series per run). :func:`frontier_plot` draws a
+cost–time frontier (cost per day against average transit time, one point
+per plan). Each returns an ``<svg>`` element as a string, sized by a
+``viewBox`` so it scales with the page; every text in it is escaped.
+Colours come from :data:`hubnet.report.fmt.RUN_COLOURS`.
 """
 
 from __future__ import annotations
@@ -224,3 +226,160 @@ def swatch(i: int) -> str:
         f"<svg width='12' height='12' aria-hidden='true'><rect width='12' height='12' "
         f"fill='{_colour(i)}'/></svg>"
     )
+
+
+def range_ticks(low: float, high: float, count: int = 5) -> list[float]:
+    """Round tick values covering ``[low, high]``: steps of 1, 2 or 5 times a power of 10.
+
+    Unlike :func:`nice_ticks` the axis need not start at 0, so a narrow
+    range (transit times from 20 h to 23 h) fills the plot.
+
+    Examples
+    --------
+    >>> range_ticks(20.3, 23.1)
+    [20.0, 21.0, 22.0, 23.0, 24.0]
+    >>> range_ticks(5.0, 5.0)
+    [4.0, 4.5, 5.0, 5.5, 6.0]
+    """
+    if not (math.isfinite(low) and math.isfinite(high)):
+        return [0.0, 1.0]
+    if high < low:
+        low, high = high, low
+    if high - low < 1e-9 * max(1.0, abs(high)):
+        pad = max(abs(high) * 0.1, 1.0)
+        low, high = low - pad, high + pad
+    raw = (high - low) / count
+    power = 10 ** math.floor(math.log10(raw))
+    step = next(m * power for m in (1, 2, 5, 10) if m * power >= raw)
+    first = math.floor(low / step + 1e-9)
+    last = math.ceil(high / step - 1e-9)
+    return [round(i * step, 12) for i in range(first, last + 1)]
+
+
+def frontier_plot(
+    transit_h: Sequence[float],
+    cost: Sequence[float],
+    labels: Sequence[str],
+    efficient: Sequence[bool],
+    *,
+    title: str,
+    names: Sequence[str] | None = None,
+    series: Sequence[int | None] | None = None,
+) -> str:
+    """Cost per day against average transit time, one point per plan.
+
+    The efficient points (no other plan is both cheaper and faster) are
+    joined by a line from the cheapest to the fastest; the others are drawn
+    as hollow grey circles.
+
+    Parameters
+    ----------
+    transit_h
+        Volume-weighted average transit time of each plan, hours.
+    cost
+        Cost of each plan, currency per day.
+    labels
+        Short label of each point (for example ``1``), written beside it.
+    efficient
+        Whether each point is on the frontier.
+    title
+        Accessible title of the chart.
+    names
+        Optional longer name of each point (``cheapest``, ``fastest``), written
+        under its label; empty strings write nothing.
+    series
+        Optional report run index of each point: the point is drawn in that
+        run's colour (as in the report's other charts); ``None`` draws it in
+        the neutral colour.
+
+    Returns
+    -------
+    str
+        An ``<svg>`` element; without points, one saying so.
+    """
+    left, right, top, bottom = 78, 24, 14, 46
+    plot_w, plot_h = 440, 250
+    width, height = left + plot_w + right, top + plot_h + bottom
+    out = [
+        f"<svg class='chart' viewBox='0 0 {width} {height}' role='img' {_FONT} "
+        f"font-size='12' xmlns='http://www.w3.org/2000/svg'><title>{esc(title)}</title>"
+    ]
+    pts = [
+        (i, float(x), float(y))
+        for i, (x, y) in enumerate(zip(transit_h, cost, strict=True))
+        if math.isfinite(x) and math.isfinite(y)
+    ]
+    if not pts:
+        middle = f"x='{width / 2}' y='{height / 2}' text-anchor='middle'"
+        out.append(f"<text {middle}>no plan on the frontier</text></svg>")
+        return "".join(out)
+    xs, ys = [p[1] for p in pts], [p[2] for p in pts]
+    pad_x, pad_y = 0.06 * (max(xs) - min(xs)), 0.06 * (max(ys) - min(ys))
+    xt = range_ticks(min(xs) - pad_x, max(xs) + pad_x)
+    yt = range_ticks(min(ys) - pad_y, max(ys) + pad_y)
+    x_dec = max(0, -math.floor(math.log10(xt[1] - xt[0]) + 1e-9))
+    y_dec = max(0, -math.floor(math.log10(yt[1] - yt[0]) + 1e-9))
+
+    def px(x: float) -> float:  # faster to the right: cost rises as time is bought
+        return left + (xt[-1] - x) / (xt[-1] - xt[0]) * plot_w
+
+    def py(y: float) -> float:
+        return top + plot_h - (y - yt[0]) / (yt[-1] - yt[0]) * plot_h
+
+    for t in xt:
+        x = px(t)
+        out.append(
+            f"<line x1='{x:.1f}' y1='{top}' x2='{x:.1f}' y2='{top + plot_h}' stroke='#e3e6ea'/>"
+            f"<text x='{x:.1f}' y='{top + plot_h + 15}' text-anchor='middle' fill='#4a4f57'>"
+            f"{esc(fmt_num(t, x_dec))}</text>"
+        )
+    for t in yt:
+        y = py(t)
+        out.append(
+            f"<line x1='{left}' y1='{y:.1f}' x2='{left + plot_w}' y2='{y:.1f}' stroke='#e3e6ea'/>"
+            f"<text x='{left - 6}' y='{y + 4:.1f}' text-anchor='end' fill='#4a4f57'>"
+            f"{esc(fmt_num(t, y_dec))}</text>"
+        )
+    out.append(
+        f"<text x='{left + plot_w / 2}' y='{height - 8}' text-anchor='middle' fill='#4a4f57'>"
+        "average transit time, hours (volume-weighted; faster to the right)</text>"
+        f"<text transform='translate(14 {top + plot_h / 2}) rotate(-90)' text-anchor='middle' "
+        "fill='#4a4f57'>cost per day</text>"
+        f"<rect x='{left}' y='{top}' width='{plot_w}' height='{plot_h}' fill='none' "
+        "stroke='#888'/>"
+    )
+    line = sorted((p for p in pts if efficient[p[0]]), key=lambda p: (-p[1], p[2]))
+    if len(line) > 1:
+        points = " ".join(f"{px(x):.1f},{py(y):.1f}" for _, x, y in line)
+        out.append(f"<polyline points='{points}' fill='none' stroke='#4a4f57' stroke-width='1.5'/>")
+    for i, x, y in pts:
+        run = series[i] if series is not None else None
+        colour = _colour(run) if run is not None else "#4a4f57"
+        name = names[i] if names is not None else ""
+        tip = f"{labels[i]}{f' ({name})' if name else ''}: cost {fmt_num(y)} per day, "
+        tip += f"average transit {fmt_num(x)} h"
+        if not efficient[i]:
+            tip += ", not on the frontier"
+        shape = (
+            f"fill='{colour}'"
+            if efficient[i]
+            else "fill='#fff' stroke='#9aa0a6' stroke-width='1.5'"
+        )
+        cx, cy = px(x), py(y)
+        out.append(
+            f"<circle cx='{cx:.1f}' cy='{cy:.1f}' r='{5 if run is not None else 4}' {shape}>"
+            f"<title>{esc(tip)}</title></circle>"
+        )
+        # labels to the right, or to the left near the right edge
+        anchor, dx = ("end", -8) if cx > left + plot_w - 70 else ("start", 8)
+        out.append(
+            f"<text x='{cx + dx:.1f}' y='{cy - 4:.1f}' text-anchor='{anchor}' "
+            f"fill='{'#1a1a1a' if efficient[i] else '#9aa0a6'}'>{esc(labels[i])}</text>"
+        )
+        if name:
+            out.append(
+                f"<text x='{cx + dx:.1f}' y='{cy + 10:.1f}' text-anchor='{anchor}' "
+                f"fill='#4a4f57' font-size='11'>{esc(name)}</text>"
+            )
+    out.append("</svg>")
+    return "".join(out)

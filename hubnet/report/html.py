@@ -11,7 +11,10 @@
    dimensions follow local regulations which the user must confirm, and
    every caution a run's summary carries (time limits, capacity);
 3. charts drawn as inline SVG (:mod:`hubnet.report.charts`): cost per day by
-   tier, and leg volume against rank on log–log axes;
+   tier, and leg volume against rank on log–log axes; for runs in a
+   frontier folder (or a frontier folder given, which stands for its
+   efficient points), also the cost–time frontier
+   (:func:`hubnet.frontier.frontier_section`);
 4. the flow-hierarchy table of every run;
 5. the route map of every run, each embedded whole in an ``<iframe
    srcdoc>`` (:mod:`hubnet.report.maps`, Leaflet inlined from the PyPI
@@ -31,6 +34,7 @@ from functools import partial
 from pathlib import Path
 from typing import Any
 
+from hubnet.frontier import frontier_section, report_run_dirs
 from hubnet.report.charts import grouped_bars, rank_size_plot, swatch
 from hubnet.report.fmt import (
     esc,
@@ -56,8 +60,17 @@ COST_WORDS: dict[str, str] = {
     "collection": "Feeder legs into hubs",
     "transfer": "Trunk legs",
     "distribution": "Feeder legs out of hubs",
+    "feeder": "Feeder legs",
+    "trunk": "Trunk legs",
     "direct": "Direct legs",
+    "time": "Value of transit time",
+    "carbon_in_vehicles": "of which carbon price (inside the legs' costs)",
 }
+
+#: Cost components of freight runs by tier (classic runs split them otherwise).
+FREIGHT_TIER_COSTS: tuple[str, ...] = ("feeder", "trunk", "direct")
+#: Freight cost components shown only when some run has them above zero.
+OPTIONAL_COSTS: tuple[str, ...] = ("time", "carbon_in_vehicles")
 
 #: Figures shown only when a run's summary.json has them: key, label, unit, format.
 OPTIONAL_FIGURES: tuple[tuple[str, str, str, str], ...] = (
@@ -163,6 +176,22 @@ def _cost_of(key: str, run: RunData) -> Any:
     return _costs(run).get(key)
 
 
+def _tier_cost_of(key: str, run: RunData) -> Any:
+    """A freight tier cost, or a classic run's same figure.
+
+    Classic feeder: collection plus distribution; classic trunk: transfer.
+    """
+    costs = _costs(run)
+    if key in costs:
+        return costs[key]
+    if key == "trunk":
+        return costs.get("transfer")
+    if key == "feeder" and ("collection" in costs or "distribution" in costs):
+        parts = [number(costs.get("collection")), number(costs.get("distribution"))]
+        return sum(p for p in parts if p is not None)
+    return None
+
+
 def _legs_of(tier: str, run: RunData) -> Any:
     return _legs_by_tier(run).get(tier, 0)
 
@@ -199,13 +228,20 @@ def _headline_rows(runs: Sequence[RunData]) -> list[Row]:
     keys: list[str] = []
     for r in runs:
         keys += [k for k in _costs(r) if k != "total" and k not in keys]
+    if any(k in keys for k in FREIGHT_TIER_COSTS):
+        # A freight run: its feeder and trunk rows take a classic run's figures too,
+        # so the two compare; the classic split of the feeder legs stays below.
+        keys = [k for k in keys if k != "transfer"]
+        keys = [k for k in keys if k not in OPTIONAL_COSTS or any(_cost_of(k, r) for r in runs)]
     for key in keys:
         rows.append(
             (
                 "sub",
                 COST_WORDS.get(key, key.replace("_", " ")),
                 "per day",
-                partial(_cost_of, key),
+                partial(_tier_cost_of, key)
+                if key in FREIGHT_TIER_COSTS
+                else partial(_cost_of, key),
                 "num",
             )
         )
@@ -222,7 +258,10 @@ def _headline_rows(runs: Sequence[RunData]) -> list[Row]:
     )
     for tier in tiers:
         rows.append(("sub", f"{tier} legs", "", partial(_legs_of, tier), "num"))
+    has_kg = any(number(r.summary.get("co2e_kg")) is not None for r in runs)
     for key, label, unit_text, kind in OPTIONAL_FIGURES:
+        if key == "co2e_t" and has_kg:
+            continue  # the same figure in kg is shown
         if any(number(r.summary.get(key)) is not None for r in runs):
             rows.append(("", label, unit_text, partial(_figure_of, key), kind))
     return rows
@@ -292,12 +331,18 @@ def _tier_costs(run: RunData) -> dict[str, float | None]:
         for tier, cost in zip(hierarchy["tier"], hierarchy["cost_per_day"], strict=True):
             if tier != "all":
                 out[f"{tier} legs"] = number(cost)
+    elif any(k in costs for k in ("feeder", "trunk", "direct")):  # freight cost keys
+        for tier in TIER_ORDER:
+            if tier in costs:
+                out[f"{tier} legs"] = number(costs.get(tier))
     else:
         out["trunk legs"] = number(costs.get("transfer"))
         parts = [number(costs.get("collection")), number(costs.get("distribution"))]
         out["feeder legs"] = sum(p for p in parts if p is not None) if any(parts) else None
     out["hub fixed cost"] = number(costs.get("hub_fixed"))
     out["sorting at hubs"] = number(costs.get("handling"))
+    if number(costs.get("time")):  # freight model with a value of time
+        out["transit time"] = number(costs.get("time"))
     return out
 
 
@@ -334,12 +379,13 @@ def _charts(runs: Sequence[RunData], labels: Sequence[str]) -> str:
         for i, (label, e) in enumerate(zip(labels, exponents, strict=True))
     )
     plot = rank_size_plot(labels, volumes, title="Leg volume by rank", unit=runs[0].volume_unit)
+    time_note = ", and the value of the transit time" if "transit time" in groups else ""
     return (
         "<h2 id='charts'>Charts</h2><div class='charts'>"
         f"<figure><h3>Where the money goes</h3>{bars}"
         f"<figcaption class='legend'>{legend}</figcaption>"
         "<figcaption>Transport cost of the legs of each tier, and the hubs' fixed and "
-        "sorting costs, per day.</figcaption></figure>"
+        f"sorting costs{time_note}, per day.</figcaption></figure>"
         f"<figure><h3>Few large legs, many small ones</h3>{plot}"
         f"<figcaption class='legend'>{rank_legend}</figcaption>"
         "<figcaption>Every leg's volume against its rank, both on log scales. A steeper fall "
@@ -358,6 +404,13 @@ _HIERARCHY_COLUMNS: tuple[tuple[str, str, str], ...] = (
     ("share_of_cost", "Share of cost", "share"),
     ("avg_distance_km", "Average leg, km", "num"),
     ("avg_volume_per_leg", "Average leg, {unit} per day", "num"),
+    # freight runs only (hierarchy.csv has these columns when the plan has vehicles)
+    ("dispatches", "Vehicle runs per day", "num"),
+    ("vehicle_km", "Vehicle-km per day", "num"),
+    ("avg_load", "Average load, {unit} per run", "num"),
+    ("fill_rate", "Fill", "share"),
+    ("share_of_time", "Share of transit time", "share"),
+    ("co2e_wtw_kg", "CO2e well-to-wheel, kg per day", "num"),
 )
 
 
@@ -464,6 +517,7 @@ def report_from_runs(
         f"{_headline_table(runs, labels)}"
         f"{_cautions(runs, labels)}"
         f"{_charts(runs, labels)}"
+        f"{frontier_section([r.folder for r in runs])}"
         f"{_hierarchy(runs, labels)}"
         f"{_maps(runs, labels, tiles)}"
         "<footer>Made by hubnet from the run folders listed above; every figure is in their "
@@ -499,7 +553,7 @@ def report_html(run_dirs: Sequence[str | Path], *, tiles: str = DEFAULT_TILES) -
     InputError
         When a folder is not a readable run folder.
     """
-    return report_from_runs([read_run(d) for d in run_dirs], tiles=tiles)
+    return report_from_runs([read_run(d) for d in report_run_dirs(run_dirs)], tiles=tiles)
 
 
 def write_report(

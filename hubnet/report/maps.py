@@ -1,19 +1,24 @@
 """The interactive route map of a run (``map.html``), drawn with folium.
 
 :func:`map_html` draws a run folder's plan from its files alone
-(``summary.json``, ``hubs.csv``, ``legs.csv``, ``routes.csv`` and
-``sites.csv``), so ``hubnet map RUN_DIR`` redraws any run folder:
+(``summary.json``, ``hubs.csv``, ``legs.csv``, ``routes.csv``,
+``sites.csv`` and, for freight runs, ``dispatches.csv``), so ``hubnet map
+RUN_DIR`` redraws any run folder:
 
 - hubs as green circles whose area grows with throughput, terminals as
   small white circles; a popup on every site (hub figures where it is a
   hub; for every site its hub and the volume it sends and receives);
 - legs as lines, one switchable layer per tier (trunk, feeder, direct),
   width by volume, colour by tier, or by vehicle class when ``legs.csv``
-  has a ``vehicle_class`` column; every leg bends slightly to the right of
-  its direction of travel, so the two directions of a lane are drawn apart
-  and each can be clicked; a popup on every leg with all its figures
-  (columns ``legs.csv`` gains later, such as hours, dispatches, fill or
-  CO2e, appear in the popup by themselves);
+  has a ``vehicle_class`` column (freight runs: a leg run by several
+  classes takes the colour of the one with most capacity on it, and its
+  popup lists the dispatches of each class from ``dispatches.csv``); an
+  empty return (a run with volume 0) is drawn thin and dotted; every leg
+  bends slightly to the right of its direction of travel, so the two
+  directions of a lane are drawn apart and each can be clicked; a popup
+  on every leg with all its figures (columns ``legs.csv`` gains later,
+  such as hours, dispatches, fill or CO2e, appear in the popup by
+  themselves);
 - a box with the scenario's name and headline figures, a legend, and the
   view fitted to the network.
 
@@ -34,8 +39,10 @@ Safe
     site named ``<img src=x onerror=alert(1)>`` shows as exactly that text.
 
 Drawn elements carry class names tests and style sheets can find:
-``hubnet-leg`` and ``hubnet-tier-<tier>`` on every leg line, ``hubnet-hub``
-or ``hubnet-terminal`` on every site circle.
+``hubnet-leg`` and ``hubnet-tier-<tier>`` on every leg line (with
+``hubnet-class-<class>`` for the class its colour shows, and ``hubnet-empty``
+on an empty return), ``hubnet-hub`` or ``hubnet-terminal`` on every site
+circle.
 """
 
 from __future__ import annotations
@@ -91,6 +98,11 @@ TIER_WORDS: dict[str, str] = {
 #: Line width in pixels of the smallest and of the largest leg volume.
 MIN_WIDTH_PX = 1.5
 MAX_WIDTH_PX = 12.0
+#: Width and dash pattern of an empty return (a run with no volume).
+EMPTY_WIDTH_PX = 1.5
+EMPTY_DASH = "2 6"
+#: Dash pattern of direct legs.
+DIRECT_DASH = "6 5"
 #: Radius in pixels of a terminal, and of a hub of no and of the largest throughput.
 TERMINAL_RADIUS_PX = 4.5
 HUB_MIN_RADIUS_PX = 7.0
@@ -118,12 +130,19 @@ LEG_FIELDS: tuple[tuple[str, str, str, str], ...] = (
     ("dispatches_per_day", "Dispatches", "per day", "num"),
     ("dispatches", "Dispatches", "per day", "num"),
     ("dispatches_by_class", "Dispatches by class", "", "text"),
+    ("capacity", "Capacity", "{unit} per day", "num"),
     ("fill_rate", "Fill", "", "share"),
     ("fill", "Fill", "", "share"),
+    ("drive_h", "Driving time", "h", "num"),
+    ("relays", "Driver changes", "per run", "num"),
+    ("drivers", "Drivers on board", "", "num"),
+    ("vehicle_km", "Vehicle-km", "per day", "num"),
     ("cost_per_day", "Cost", "per day", "num"),
     ("cost_per_unit", "Cost per {one}", "", "num"),
     ("co2e_kg_per_day", "CO2e", "kg per day", "num"),
     ("co2e_t_per_day", "CO2e", "t per day", "num"),
+    ("co2e_wtw_kg", "CO2e well-to-wheel", "kg per day", "num"),
+    ("co2e_ttw_kg", "CO2e tank-to-wheel", "kg per day", "num"),
 )
 #: Leg columns never listed in the popup body (they form its heading).
 _LEG_HEADING = ("from_site", "to_site")
@@ -323,7 +342,17 @@ def leg_popup(leg: Mapping[str, Any], names: Mapping[str, str], volume_unit: str
         f"{_site_label(str(leg.get('from_site', '')), names)} → "
         f"{_site_label(str(leg.get('to_site', '')), names)}"
     )
-    return f"<div class='hn-pop'><h4>{esc(head)}</h4><table>{_rows(rows)}</table></div>"
+    role = ""
+    if is_empty_return(leg):
+        role = "<div class='hn-role'>Empty return: the vehicles run back without load</div>"
+    return f"<div class='hn-pop'><h4>{esc(head)}</h4>{role}<table>{_rows(rows)}</table></div>"
+
+
+def is_empty_return(leg: Mapping[str, Any]) -> bool:
+    """True for a ``legs.csv`` row with dispatches but no volume (a vehicle's way back)."""
+    volume = number(leg.get("volume_per_day"))
+    runs = number(leg.get("dispatches"))
+    return volume is not None and volume <= 0 and runs is not None and runs > 0
 
 
 def _bend(
@@ -459,6 +488,14 @@ def _headline(run: RunData, note: str = "", *, open_box: bool = True) -> str:
         ("Volume", f"{fmt_num(s.get('total_volume'))} {unit} per day"),
         ("Legs", leg_text or "none"),
     ]
+    for key, label, unit_text in (
+        ("vehicles", "Vehicles", ""),
+        ("vehicle_km", "Vehicle-km", "per day"),
+        ("avg_transit_h", "Average transit", "h"),
+        ("co2e_kg", "CO2e", "kg per day"),
+    ):
+        if number(s.get(key)) is not None:
+            rows.append((label, f"{fmt_num(s.get(key))} {unit_text}".rstrip()))
     description = s.get("description")
     desc = f"<div class='hn-desc'>{esc(description)}</div>" if description else ""
     warn = "" if s.get("status") == "optimal" else " hn-warn"
@@ -495,26 +532,46 @@ def _legend(
     unit: str,
     *,
     open_box: bool = True,
+    class_names: Mapping[str, str] | None = None,
+    mixed: bool = False,
+    empty_returns: bool = False,
 ) -> str:
-    """The legend box: line colours, widths, site symbols and how legs are drawn."""
+    """The legend box: line colours, widths, site symbols and how legs are drawn.
+
+    With vehicle classes, one entry per class (``id: name`` when the
+    summary names it), a note on legs shared by classes (``mixed``) and an
+    entry for empty returns (``empty_returns``).
+    """
     parts = [
         f"<details{' open' if open_box else ''} class='hn-box hn-legend' id='hn-legend'>"
         "<summary><b>Legend</b></summary>"
     ]
     mid = (MIN_WIDTH_PX + MAX_WIDTH_PX) / 4
+    names = class_names or {}
     if classes:
         for cls, colour in classes.items():
-            parts.append(f"<div>{_line_key(colour, mid)}{esc(cls)}</div>")
+            name = names.get(cls, "")
+            text = f"{cls}: {name}" if name and name != cls else cls
+            parts.append(f"<div>{_line_key(colour, mid)}{esc(text)}</div>")
+        if mixed:
+            parts.append(
+                "<div class='hn-note'>Line colour: the vehicle class with most capacity "
+                "on the leg.</div>"
+            )
         for tier in tiers:
-            dash = "6 5" if tier == "direct" else None
+            dash = DIRECT_DASH if tier == "direct" else None
             parts.append(
                 f"<div>{_line_key('#555', 2, dash)}{esc(TIER_WORDS.get(tier, tier))}</div>"
             )
     else:
         for tier in tiers:
             word = TIER_WORDS.get(tier, f"{tier} legs")
-            dash = "6 5" if tier == "direct" else None
+            dash = DIRECT_DASH if tier == "direct" else None
             parts.append(f"<div>{_line_key(tier_colour(tier), mid, dash)}{esc(word)}</div>")
+    if empty_returns:
+        parts.append(
+            f"<div>{_line_key('#555', EMPTY_WIDTH_PX, EMPTY_DASH)}Empty return (no load)</div>"
+        )
     if largest_volume > 0:
         small = largest_volume / 10
         parts.append(
@@ -535,12 +592,73 @@ def _legend(
     return "".join(parts)
 
 
-def _class_colours(legs: pd.DataFrame) -> dict[str, str]:
-    """Colour of each vehicle class, when ``legs.csv`` has a ``vehicle_class`` column."""
+def _class_names(run: RunData) -> dict[str, str]:
+    """Vehicle class id to name, in the order of the summary's ``freight.by_class``."""
+    by_class = _mapping(_mapping(run.summary.get("freight")).get("by_class"))
+    return {c: str(_mapping(rec).get("name") or "") for c, rec in by_class.items()}
+
+
+def _class_colours(legs: pd.DataFrame, order: Sequence[str] = ()) -> dict[str, str]:
+    """Colour of each vehicle class, when ``legs.csv`` has a ``vehicle_class`` column.
+
+    Classes take the colours of :data:`CLASS_COLOURS` in ``order`` (the
+    summary's class order, so runs on the same vehicles file colour alike),
+    then in order of first appearance in ``legs.csv``; a cell naming several
+    classes (``artic+van``) counts each.
+    """
     if "vehicle_class" not in legs.columns:
         return {}
-    classes = [c for c in dict.fromkeys(legs["vehicle_class"].astype(str)) if c]
+    seen = [c for cell in legs["vehicle_class"].astype(str) for c in cell.split("+") if c]
+    classes = list(dict.fromkeys([*order, *seen]))
     return {c: CLASS_COLOURS[i % len(CLASS_COLOURS)] for i, c in enumerate(classes)}
+
+
+def _runs_by_leg(
+    dispatches: pd.DataFrame,
+) -> dict[tuple[str, str, str], list[tuple[str, float, float]]]:
+    """``dispatches.csv`` by leg: ``(tier, from, to)`` -> ``[(class, dispatches, capacity)]``.
+
+    Capacity is dispatches x payload (dispatches alone when the payload is
+    unknown); empty for a run folder without ``dispatches.csv``.
+    """
+    need = {"tier", "origin", "destination", "vehicle_class", "dispatches"}
+    out: dict[tuple[str, str, str], list[tuple[str, float, float]]] = {}
+    if not need <= set(dispatches.columns):
+        return out
+    for row in _records(dispatches):
+        n = number(row.get("dispatches")) or 0.0
+        payload = number(row.get("payload"))
+        key = (str(row["tier"]), str(row["origin"]), str(row["destination"]))
+        out.setdefault(key, []).append(
+            (str(row["vehicle_class"]), n, n * payload if payload is not None else n)
+        )
+    return out
+
+
+def _leg_class(
+    leg: Mapping[str, Any],
+    runs: Sequence[tuple[str, float, float]],
+    colours: Mapping[str, str],
+) -> str:
+    """The class whose colour a leg takes: the one with most capacity on it.
+
+    Without ``dispatches.csv`` rows, the first class named in the leg's
+    ``vehicle_class`` cell (in colour order); ``""`` when it names none.
+    """
+    rank = {c: i for i, c in enumerate(colours)}
+    if runs:
+        return max(runs, key=lambda r: (r[2], -rank.get(r[0], len(rank))))[0]
+    named = [c for c in str(leg.get("vehicle_class") or "").split("+") if c]
+    return min(named, key=lambda c: rank.get(c, len(rank))) if named else ""
+
+
+def _dispatch_text(runs: Sequence[tuple[str, float, float]], names: Mapping[str, str]) -> str:
+    """``34 × artic (40 t articulated), 1 × van`` for a leg's popup."""
+    parts = []
+    for cls, n, _ in runs:
+        name = names.get(cls, "")
+        parts.append(f"{fmt_num(n)} × {cls}" + (f" ({name})" if name and name != cls else ""))
+    return ", ".join(parts)
 
 
 def _inline_map_class() -> type:
@@ -620,7 +738,11 @@ def build_map(run: RunData, *, tiles: str = DEFAULT_TILES, compact: bool = False
     bind = _bind_class()
 
     # Legs: one layer per tier, the largest legs drawn first (lowest).
-    class_colours = _class_colours(legs)
+    class_names = _class_names(run)
+    class_colours = _class_colours(legs, list(class_names))
+    runs_by_leg = _runs_by_leg(run.table("dispatches"))
+    mixed = False
+    empty = 0
     volumes = [number(v) or 0.0 for v in legs.get("volume_per_day", [])]
     largest_volume = max(volumes, default=0.0)
     leg_records = _records(legs)
@@ -639,22 +761,34 @@ def build_map(run: RunData, *, tiles: str = DEFAULT_TILES, compact: bool = False
                 missing += 1
                 continue
             volume = number(leg.get("volume_per_day"))
-            cls = str(leg.get("vehicle_class", ""))
+            runs = runs_by_leg.get((tier, a, b), [])
+            cls = _leg_class(leg, runs, class_colours) if class_colours else ""
+            mixed = mixed or len(runs) > 1 or "+" in str(leg.get("vehicle_class") or "")
             colour = class_colours.get(cls) or tier_colour(tier)
+            css = f"hubnet-leg hubnet-tier-{_slug(tier)} hubnet-row-{i}"
+            if cls:
+                css += f" hubnet-class-{_slug(cls)}"
+            back = is_empty_return(leg)
+            if back:
+                empty += 1
+                css += " hubnet-empty"
             line = folium.PolyLine(
                 _bend(where[a], where[b], planar),
                 color=colour,
-                weight=_width(volume, largest_volume),
+                weight=EMPTY_WIDTH_PX if back else _width(volume, largest_volume),
                 opacity=0.85,
-                dash_array="6 5" if tier == "direct" else None,
-                class_name=f"hubnet-leg hubnet-tier-{_slug(tier)} hubnet-row-{i}",
+                dash_array=EMPTY_DASH if back else (DIRECT_DASH if tier == "direct" else None),
+                class_name=css,
             )
             line.options["pane"] = "hubnetLegs"
             tip = (
                 f"{_site_label(a, names)} → {_site_label(b, names)}: "
-                f"{fmt_num(volume)} {unit} per day"
+                f"{fmt_num(volume)} {unit} per day" + (" (empty return)" if back else "")
             )
-            bind(leg_popup(leg, names, unit), esc(tip)).add_to(line)
+            shown = dict(leg)
+            if runs:
+                shown["dispatches_by_class"] = _dispatch_text(runs, class_names)
+            bind(leg_popup(shown, names, unit), esc(tip)).add_to(line)
             line.add_to(group)
         group.add_to(m)
 
@@ -753,6 +887,9 @@ def build_map(run: RunData, *, tiles: str = DEFAULT_TILES, compact: bool = False
                 largest_throughput,
                 unit,
                 open_box=not compact,
+                class_names=class_names,
+                mixed=mixed,
+                empty_returns=empty > 0,
             )
         )
     )

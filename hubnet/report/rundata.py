@@ -55,6 +55,7 @@ TEXT_COLUMNS: frozenset[str] = frozenset(
 RUN_TABLES: dict[str, bool] = {
     "hubs": True,
     "legs": True,
+    "dispatches": False,
     "routes": True,
     "hierarchy": False,
     "rank_size": False,
@@ -140,8 +141,9 @@ class RunData:
     summary
         ``summary.json`` as a dict.
     tables
-        ``hubs``, ``legs``, ``routes`` always; ``hierarchy``, ``rank_size``
-        and ``sites`` when the folder has them (an empty table otherwise).
+        ``hubs``, ``legs``, ``routes`` always; ``dispatches`` (freight
+        runs), ``hierarchy``, ``rank_size`` and ``sites`` when the folder
+        has them (an empty table otherwise).
     """
 
     folder: Path

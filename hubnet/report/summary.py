@@ -30,6 +30,9 @@ MONEY_DECIMALS = 4
 VOLUME_DECIMALS = 6
 KM_DECIMALS = 3
 SECONDS_DECIMALS = 3
+HOURS_DECIMALS = 6
+KG_DECIMALS = 3
+RATIO_DECIMALS = 6
 #: Significant digits kept for ratios that may be tiny (the gap).
 RATIO_SIGNIFICANT = 6
 
@@ -38,7 +41,41 @@ RATIO_SIGNIFICANT = 6
 OBJECTIVE_CHECK_TOLERANCE = 1e-6
 
 #: Order of the cost components in the summary (any other component follows).
-COST_ORDER = ("hub_fixed", "handling", "collection", "transfer", "distribution", "total")
+#: Classic runs have hub_fixed, handling, collection, transfer, distribution and
+#: total; freight runs hub_fixed, handling, feeder, trunk, direct, time, total
+#: and carbon_in_vehicles (the carbon price already inside the legs' costs,
+#: not to be added to the total).
+COST_ORDER = (
+    "hub_fixed",
+    "handling",
+    "collection",
+    "transfer",
+    "distribution",
+    "feeder",
+    "trunk",
+    "direct",
+    "time",
+    "total",
+    "carbon_in_vehicles",
+)
+
+#: Freight figures (``Solution.freight``) copied to the top level of the
+#: summary, with the decimals kept. The other freight figures go in the
+#: ``freight`` key.
+FREIGHT_TOP_LEVEL: dict[str, int] = {
+    "vehicles": VOLUME_DECIMALS,
+    "dispatches": VOLUME_DECIMALS,
+    "vehicle_km": KM_DECIMALS,
+    "avg_transit_h": HOURS_DECIMALS,
+    "max_transit_h": HOURS_DECIMALS,
+    "service_level": RATIO_DECIMALS,
+    "co2e_kg": KG_DECIMALS,
+    "co2e_ttw_kg": KG_DECIMALS,
+    "co2e_wtw_kg": KG_DECIMALS,
+    "co2e_t": RATIO_DECIMALS,
+    "feeder_h_per_unit": HOURS_DECIMALS,
+    "trunk_h_per_unit": HOURS_DECIMALS,
+}
 
 #: Cautions every summary carries, whatever the plan.
 STANDING_CAUTIONS: tuple[str, ...] = (
@@ -142,10 +179,62 @@ def _plan_cautions(sol: Solution, check: float | None) -> list[str]:
     return out
 
 
-def _config_info(config: ScenarioConfig) -> dict[str, Any]:
-    """The parts of a config that explain the figures (model, distances, inputs)."""
-    m, dist, inp = config.model, config.distances, config.inputs
+def clock_text(hours: float) -> str:
+    """Hours after midnight as a time of day ``HH:MM`` (``24:00`` stays ``24:00``).
+
+    Examples
+    --------
+    >>> clock_text(18.0), clock_text(8.5), clock_text(24.0)
+    ('18:00', '08:30', '24:00')
+    """
+    minutes = round(hours * 60.0)
+    return f"{minutes // 60:02d}:{minutes % 60:02d}"
+
+
+def _freight_config_info(config: ScenarioConfig) -> dict[str, Any]:
+    """The freight model's settings: ``[service]``, ``[hours]`` and ``[freight]``.
+
+    The ``[freight]`` section is written as ``freight_settings``: the
+    summary's ``freight`` key holds the plan's freight figures.
+    """
+    fp = config.freight
+    service, hours = fp.service, fp.hours
     return {
+        "service": {
+            "cutoff": clock_text(service.cutoff_h),
+            "deliver_by": clock_text(service.deliver_by_h),
+            "days": service.days,
+            "sort_hours": service.sort_hours,
+        },
+        "hours": {
+            "rules": hours.rules,
+            "long_legs": hours.long_legs,
+            "relay_minutes": hours.relay_minutes,
+            "relay_cost": hours.relay_cost,
+            "second_driver_cost_per_hour": hours.second_driver_cost_per_hour,
+        },
+        "freight_settings": {
+            "round_trips": fp.round_trips,
+            "integer_vehicles": fp.integer_vehicles,
+            "direct_min_load": fp.direct_min_load,
+            "value_of_time": fp.value_of_time,
+            "carbon_price_per_t": fp.carbon_price_per_t,
+            "emissions_basis": fp.emissions_basis,
+            "max_transit_h": fp.max_transit_h,
+            "minimise": fp.minimise,
+        },
+    }
+
+
+def _config_info(config: ScenarioConfig) -> dict[str, Any]:
+    """The parts of a config that explain the figures (model, distances, inputs).
+
+    A freight config (one naming a vehicles file) adds the vehicles file and
+    the unit weight and cubic volume to ``inputs``, and the ``service``,
+    ``hours`` and ``freight_settings`` (the ``[freight]`` section) keys.
+    """
+    m, dist, inp = config.model, config.distances, config.inputs
+    info: dict[str, Any] = {
         "description": config.description,
         "model": {
             "allocation": m.allocation,
@@ -164,6 +253,69 @@ def _config_info(config: ScenarioConfig) -> dict[str, Any]:
             "sheet": inp.sheet,
         },
     }
+    if inp.vehicles is not None:
+        info["inputs"].update(
+            {
+                "vehicles": inp.vehicles,
+                "kg_per_unit": config.freight.kg_per_unit,
+                "m3_per_unit": config.freight.m3_per_unit,
+            }
+        )
+        info.update(_freight_config_info(config))
+    return info
+
+
+def _freight_value(key: str, value: Any) -> Any:
+    """A freight figure rounded by its kind (read from its key), recursively."""
+    if isinstance(value, Mapping):
+        return {str(k): _freight_value(str(k), v) for k, v in value.items()}
+    if isinstance(value, bool) or not isinstance(value, int | float | np.generic):
+        return jsonable(value)
+    x = float(value)
+    if key in FREIGHT_TOP_LEVEL:
+        return _round(x, FREIGHT_TOP_LEVEL[key])
+    if key.endswith("_km") or key == "unit_km":
+        return _round(x, KM_DECIMALS)
+    if key.endswith("_kg"):
+        return _round(x, KG_DECIMALS)
+    if key.endswith(("_h", "_h_per_unit")):
+        return _round(x, HOURS_DECIMALS)
+    return _round(x, VOLUME_DECIMALS)
+
+
+def freight_summary(sol: Solution) -> dict[str, Any]:
+    """The freight figures of a plan for ``summary.json`` (empty for a classic plan).
+
+    Parameters
+    ----------
+    sol
+        The plan.
+
+    Returns
+    -------
+    dict
+        The keys of :data:`FREIGHT_TOP_LEVEL` found in ``sol.freight``
+        (vehicles and dispatches per day, vehicle-km per day, hours, the
+        on-time share, CO2e in kg and t per day, hours per unit on feeder
+        and trunk legs), then ``freight``: every other figure of
+        ``sol.freight`` (``by_class`` with each class's payload, round
+        trips, runs, vehicle-km and CO2e; the emissions basis; hours per
+        unit on direct legs and in sorts; round trips on or off; the
+        drivers' hours rules). ``unit_km`` is left out: the summary has it.
+    """
+    if not sol.freight:
+        return {}
+    out: dict[str, Any] = {
+        key: _freight_value(key, sol.freight[key])
+        for key in FREIGHT_TOP_LEVEL
+        if key in sol.freight
+    }
+    out["freight"] = {
+        str(key): _freight_value(str(key), value)
+        for key, value in sol.freight.items()
+        if key not in FREIGHT_TOP_LEVEL and key != "unit_km"
+    }
+    return out
 
 
 def summary_dict(
@@ -197,14 +349,23 @@ def summary_dict(
         ``hub_count``, ``allocation``, ``solver``, ``solve_seconds``,
         ``build_seconds``, ``formulation``, ``solver_options``, ``costs``
         (hub_fixed, handling, collection, transfer, distribution, total;
-        currency per day), ``volume_unit``, ``total_volume`` (OD volume,
+        currency per day; a freight plan has hub_fixed, handling, feeder,
+        trunk, direct, time, total and carbon_in_vehicles, the carbon
+        price already inside the legs' costs), ``volume_unit``, ``total_volume`` (OD volume,
         volume unit per day), ``od_pairs``, ``legs_by_tier`` (counts),
         ``unit_km`` (volume unit-km per day over all legs),
         ``rank_size_exponent``, ``objective_check`` (re-priced total minus
         the solver's objective, currency per day), ``hubnet_version`` and
         ``cautions`` (plain sentences). Money keeps 4 decimals, volumes 6,
         km and seconds 3, the gap 6 significant digits. A figure that is
-        unknown, NaN or infinite is ``None``.
+        unknown, NaN or infinite is ``None``. A freight plan adds the keys
+        of :func:`freight_summary` (vehicles, dispatches, vehicle_km,
+        avg_transit_h, max_transit_h, service_level, co2e_kg, co2e_ttw_kg,
+        co2e_wtw_kg, co2e_t, feeder_h_per_unit, trunk_h_per_unit and
+        ``freight``); with a freight config, the config part adds
+        ``inputs.vehicles``, ``inputs.kg_per_unit``, ``inputs.m3_per_unit``,
+        ``service``, ``hours`` and ``freight_settings`` (the config's
+        ``[freight]`` section).
 
     Raises
     ------
@@ -245,8 +406,13 @@ def summary_dict(
         "hubnet_version": hubnet_version(),
         "cautions": [*STANDING_CAUTIONS, *_plan_cautions(sol, check)],
     }
+    out.update(freight_summary(sol))
     if config is not None:
-        out.update(jsonable(_config_info(config)))
+        info = jsonable(_config_info(config))
+        clash = sorted(set(out) & set(info))
+        if clash:  # a programming error: the config part may not hide a figure
+            raise ValueError(f"config summary keys clash with the plan's: {clash}")
+        out.update(info)
     if extra:
         clash = sorted(set(out) & set(map(str, extra)))
         if clash:

@@ -1,8 +1,9 @@
 """One Excel workbook with every table of a run (``tables.xlsx``), via openpyxl.
 
 Sheets: ``summary`` (the key figures of ``summary.json``, one per row),
-then one sheet per table (``hubs``, ``legs``, ``routes``, ``hierarchy``,
-``rank_size``, and ``sites`` when known), then ``columns`` (what every
+then one sheet per table (``hubs``, ``legs``, ``dispatches`` for freight
+runs, ``routes``, ``hierarchy``, ``rank_size``, and ``sites`` when known),
+then ``columns`` (what every
 column means). On every table sheet the header row names each column with
 its unit (``distance_km [km]``, ``volume_per_day [pallets/day]``), a
 comment on each header cell holds the column's full description from
@@ -32,6 +33,22 @@ WORKBOOK_FILE = "tables.xlsx"
 
 #: Sheet order after ``summary``.
 TABLE_SHEETS: tuple[str, ...] = ("hubs", "legs", "routes", "hierarchy", "rank_size", "sites")
+#: Sheets of freight runs only, each placed after the sheet named beside it.
+FREIGHT_SHEETS: dict[str, str] = {"dispatches": "legs"}
+
+
+def sheet_order(tables: Mapping[str, object]) -> list[str]:
+    """The table sheets a workbook of these tables has, in order.
+
+    :data:`TABLE_SHEETS` that are given, with each of :data:`FREIGHT_SHEETS`
+    that is given after its neighbour (``dispatches`` after ``legs``).
+    """
+    order: list[str] = []
+    for name in TABLE_SHEETS:
+        order.append(name)
+        order += [extra for extra, after in FREIGHT_SHEETS.items() if after == name]
+    return [name for name in order if name in tables]
+
 
 #: Columns of sites.csv (not a table of :data:`COLUMNS`: it comes from the inputs).
 SITES_COLUMNS: dict[str, str] = {
@@ -72,16 +89,30 @@ def column_unit(column: str, volume_unit: str = "units") -> str:
     ('pallets/day', 'currency/pallet')
     >>> column_unit("unit_km_per_day", "pallets"), column_unit("share_of_cost")
     ('pallet-km/day', 'fraction')
+
+    Columns of freight runs:
+
+    >>> column_unit("vehicle_km"), column_unit("co2e_wtw_kg"), column_unit("dispatches_artic")
+    ('vehicle-km/day', 'kg CO2e/day', 'runs/day')
+    >>> column_unit("capacity", "pallets"), column_unit("payload", "pallets")
+    ('pallets/day', 'pallets/vehicle')
     """
     one = singular(volume_unit)
     if column == "unit_km_per_day":
         return f"{one}-km/day"
     if column in ("lat", "lon"):
         return "degrees"
-    if column.startswith(("share_", "cumulative_share")) or column in ("utilisation", "fill_rate"):
+    if column.startswith(("share_", "cumulative_share")) or column in (
+        "utilisation",
+        "fill_rate",
+        "fill",
+    ):
         return "fraction"
+    freight = _freight_unit(column, volume_unit)
+    if freight:
+        return freight
     if "cost" in column:
-        if column.endswith("_per_day"):
+        if column.endswith("_per_day") or column == "cost":
             return "currency/day"
         if column.endswith("_per_unit"):
             return f"currency/{one}"
@@ -92,6 +123,29 @@ def column_unit(column: str, volume_unit: str = "units") -> str:
     if column.endswith("_per_day") or column == "avg_volume_per_leg":
         return f"{volume_unit}/day"
     if column in ("legs", "terminal_count", "hub_count", "rank"):
+        return "count"
+    return ""
+
+
+def _freight_unit(column: str, volume_unit: str) -> str:
+    """The unit of a column only freight runs have, ``""`` for any other column."""
+    if column == "vehicle_km":
+        return "vehicle-km/day"
+    if column.startswith("co2e_") and column.endswith("_kg"):
+        return "kg CO2e/day"
+    if column == "dispatches" or column.startswith("dispatches_"):
+        return "runs/day"
+    if column in ("capacity", "volume"):
+        return f"{volume_unit}/day"
+    if column == "payload":
+        return f"{volume_unit}/vehicle"
+    if column == "avg_load":
+        return f"{volume_unit}/run"
+    if column == "avg_speed_kmh":
+        return "km/h"
+    if column == "driving_h":
+        return "vehicle-h/day"
+    if column in ("relays", "drivers"):
         return "count"
     return ""
 
@@ -156,8 +210,8 @@ def workbook_bytes(
     ----------
     tables
         The run's tables by name (``hubs``, ``legs``, ``routes``,
-        ``hierarchy``, ``rank_size``, optionally ``sites``); tables not
-        given are left out.
+        ``hierarchy``, ``rank_size``, optionally ``sites`` and, for a
+        freight run, ``dispatches``); tables not given are left out.
     summary
         The run's summary (``summary.json`` content).
 
@@ -189,9 +243,7 @@ def workbook_bytes(
         row[0].alignment = Alignment(wrap_text=True, vertical="top")
 
     docs: list[tuple[str, str, str, str]] = []
-    for name in TABLE_SHEETS:
-        if name not in tables:
-            continue
+    for name in sheet_order(tables):
         frame = tables[name]
         if len(frame) > MAX_SHEET_ROWS - 1:
             # Excel cannot open a longer sheet: keep the rows that fit and say so.
