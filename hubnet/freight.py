@@ -850,6 +850,44 @@ def build_freight_model(
                         expr([(v, 1.0) for v in runs] + [(xv, -1.0)]) >= 0,
                         (f"one_vehicle_feeder_{i}_{k}_{way}"),
                     )
+        # Valid for whole vehicles: the vehicles on terminal i's feeder leg
+        # cost at least the cheapest whole-vehicle cover of the volume that
+        # cannot go direct (in its larger direction, for round trips).
+        for (i, k), xv in x.items():
+            if i == k:
+                continue
+            if fp.round_trips:
+                needs = [(0, max(hub_out[i], hub_in[i]), False)]
+            else:
+                needs = [(0, hub_out[i], False), (1, hub_in[i], True)]
+            for way, vol, from_hub in needs:
+                if vol <= 1e-9:
+                    continue
+                keyed = [
+                    (key[3], v)
+                    for key, v in vehicles.items()
+                    if key[0] == "feeder" and key[1] == i and key[2] == k and key[4] == way
+                ]
+                if not keyed:
+                    continue
+                if fp.round_trips:
+                    costs = [sum(dispatch_cost(tables, fp, "feeder", i, k, c)) for c, _ in keyed]
+                else:
+                    s_, t_ = (k, i) if from_hub else (i, k)
+                    costs = [
+                        one_way_cost(tables, fp, "feeder", s_, t_, c, from_hub) for c, _ in keyed
+                    ]
+                counts = cheapest_cover(vol, [float(tables.payload[c]) for c, _ in keyed], costs)
+                least = float(sum(n * cc for n, cc in zip(counts, costs, strict=True)))
+                if least > 0:
+                    prob += (
+                        expr(
+                            [(v, cc) for (_, v), cc in zip(keyed, costs, strict=True)]
+                            + [(xv, -least)]
+                        )
+                        >= 0,
+                        f"cover_cost_feeder_{i}_{k}_{way}",
+                    )
         for (i, j), dv in direct.items():
             if fp.round_trips:
                 runs = by_run.get(("direct", min(i, j), max(i, j), 0), [])
@@ -1376,17 +1414,32 @@ def solve_freight(
     if fp.minimise == "transit":
         # The fastest plan: least unit-hours first, then the cheapest plan that
         # keeps that average transit time (a lexicographic optimum).
-        model, stats = _solve_model(data, st, params, fp, opts, say, "least transit time", start)
+        model, stats = _solve_model(
+            data, st, params, fp, _left(opts, t0, 0.5), say, "least transit time", start
+        )
         fastest = (stats.objective or 0.0) / max(float(st.w.sum()), 1e-12)
         say(f"least average transit time {fastest:.3f} h; now the cheapest plan that keeps it")
         cap = fastest * (1.0 + 1e-7) + 1e-7
         if fp.max_transit_h is not None:
             cap = min(cap, fp.max_transit_h)
         fp = dataclasses.replace(fp, minimise="cost", max_transit_h=cap)
-    model, stats = _solve_model(data, st, params, fp, opts, say, "least cost", start)
+    model, stats = _solve_model(data, st, params, fp, _left(opts, t0), say, "least cost", start)
     stats = dataclasses.replace(stats, build_seconds=time.perf_counter() - t0 - stats.solve_seconds)
     plan = read_plan(model, fp)
     return evaluate_freight(data, st, params, fp, plan, stats, scenario=scenario)
+
+
+def _left(opts: SolverParams, t0: float, share: float = 1.0) -> SolverParams:
+    """``opts`` with the time limit cut to what is left of the run's (times ``share``).
+
+    The time limit is the run's wall-clock budget: the checks, the local
+    search and the model building come out of it. The solver keeps at least
+    a tenth of it.
+    """
+    if opts.time_limit_s is None:
+        return opts
+    left = opts.time_limit_s - (time.perf_counter() - t0)
+    return dataclasses.replace(opts, time_limit_s=max(left * share, 0.1 * opts.time_limit_s))
 
 
 def _solve_model(
@@ -1414,7 +1467,7 @@ def _solve_model(
     )
     if start is not None:
         set_start(model, start)
-    limit = f" (limit {opts.time_limit_s:g} s)" if opts.time_limit_s else ""
+    limit = f" (limit {opts.time_limit_s:.0f} s)" if opts.time_limit_s else ""
     say(f"solving for {goal} with {opts.name}{limit}")
     stats = run_solver(model, opts, say)
     stats = dataclasses.replace(stats, build_seconds=build_seconds)
