@@ -365,6 +365,11 @@ def main() -> None:
         "configs/national_small.toml for the freight set",
     )
     parser.add_argument(
+        "--skip-steady",
+        action="store_true",
+        help="skip the steady-state sweep (saves its two runs of the eight scenarios)",
+    )
+    parser.add_argument(
         "--check-only",
         action="store_true",
         help="write the sweep files, check every scenario, solve nothing",
@@ -396,7 +401,8 @@ def main() -> None:
     try:
         calibration()
         end_to_end(root, 8, args.workers, detail=True, base=base, eight=eight, exact=exact)
-        steady_state(root, args.workers, base, eight, warm_all=exact)
+        if not args.skip_steady:
+            steady_state(root, args.workers, base, eight, warm_all=exact)
         if large:
             end_to_end(root, large, args.workers, detail=False, base=base, eight=eight, exact=exact)
         calibration()

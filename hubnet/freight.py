@@ -1073,10 +1073,15 @@ def evaluate_freight(
     route_parts: list[
         tuple[int, int, float, list[tuple[str, int, int]], float, tuple[int, ...]]
     ] = []
+    # FIX (found by tests/test_freight.py): within the solver's integrality
+    # tolerance (an x of 1e-6 times a terminal's volume) a direct share can
+    # fall short of 1 by a speck that no vehicle covers; such specks go direct.
+    speck = 1e-5 * max(1.0, float(w.sum()))
     rows, cols = np.nonzero(w)
     for i, j in zip(rows.tolist(), cols.tolist(), strict=True):
         vol = float(w[i, j])
         dv = vol * plan.direct.get((i, j), 0.0)
+        dv = vol if 0.0 < vol - dv <= speck and dv > 0.0 else dv
         if dv > 1e-9:
             flows["direct", i, j] += dv
             t = float(st.direct_t[i, j])
@@ -1125,7 +1130,7 @@ def evaluate_freight(
             continue
         volume = flows.get((tier, s, t), 0.0)
         capacity = float(sum(tables.payload[c] * n for c, n in counts.items()))
-        if volume > capacity + 1e-6 * max(1.0, volume):
+        if volume > capacity + max(1e-6 * volume, speck):  # FIX: see speck above
             problems.append(
                 f"{tier} leg {ids[s]} -> {ids[t]}: {volume:.3f} units, capacity {capacity:.3f}"
             )
@@ -1415,18 +1420,65 @@ def solve_freight(
         # The fastest plan: least unit-hours first, then the cheapest plan that
         # keeps that average transit time (a lexicographic optimum).
         model, stats = _solve_model(
-            data, st, params, fp, _left(opts, t0, 0.5), say, "least transit time", start
+            data, st, params, fp, _left(opts, t0, 0.5), say, "least transit time"
         )
         fastest = (stats.objective or 0.0) / max(float(st.w.sum()), 1e-12)
         say(f"least average transit time {fastest:.3f} h; now the cheapest plan that keeps it")
-        cap = fastest * (1.0 + 1e-7) + 1e-7
+        # FIX (found by tests/test_freight.py): 1e-5, not 1e-7: with a cap that tight
+        # HiGHS's presolve can call the second stage infeasible though the first
+        # stage's plan meets it.
+        cap = fastest * (1.0 + 1e-5) + 1e-5
         if fp.max_transit_h is not None:
             cap = min(cap, fp.max_transit_h)
         fp = dataclasses.replace(fp, minimise="cost", max_transit_h=cap)
-    model, stats = _solve_model(data, st, params, fp, _left(opts, t0), say, "least cost", start)
+    # The starting plan is not handed to the solver as a MIP start: HiGHS 1.16
+    # and CBC 2.10 were both seen to stop at a given start and call it optimal
+    # with a wrong objective (tests/test_freight.py). It is kept instead, and
+    # returned when the solver ends with nothing better.
+    fallback = _priced_start(data, st, params, fp, start)
+    try:
+        model, stats = _solve_model(data, st, params, fp, _left(opts, t0), say, "least cost")
+    except NoSolutionError:
+        if fallback is None or start is None:
+            raise
+        say("no plan from the solver within the time limit; keeping the starting plan")
+        stats = SolveStats(opts.name, "time_limit", fallback, None, None, 0.0, 0.0, "freight")
+        return evaluate_freight(data, st, params, fp, start, stats, scenario=scenario)
     stats = dataclasses.replace(stats, build_seconds=time.perf_counter() - t0 - stats.solve_seconds)
     plan = read_plan(model, fp)
-    return evaluate_freight(data, st, params, fp, plan, stats, scenario=scenario)
+    sol = evaluate_freight(data, st, params, fp, plan, stats, scenario=scenario)
+    if (
+        fallback is not None
+        and start is not None
+        and fallback < sol.costs["total"] - 1e-6 * abs(sol.costs["total"])
+    ):
+        say(f"the starting plan ({fallback:,.2f}) is cheaper than the solver's; keeping it")
+        bound = stats.best_bound
+        gap = None if bound is None else max(0.0, (fallback - bound) / max(abs(fallback), 1e-9))
+        stats = dataclasses.replace(stats, objective=fallback, gap=gap)
+        sol = evaluate_freight(data, st, params, fp, start, stats, scenario=scenario)
+    return sol
+
+
+def _priced_start(
+    data: NetworkData,
+    st: _Setup,
+    params: HubModelParams,
+    fp: FreightParams,
+    start: FreightPlan | None,
+) -> float | None:
+    """Cost of the starting plan, or None when it is missing or breaks the transit cap."""
+    if start is None:
+        return None
+    stats = SolveStats("none", "time_limit", None, None, None, 0.0, 0.0, "starting plan")
+    try:
+        sol = evaluate_freight(data, st, params, fp, start, stats)
+    except SolverError:
+        return None
+    avg = float(sol.freight.get("avg_transit_h", 0.0))  # type: ignore[arg-type]
+    if fp.max_transit_h is not None and avg > fp.max_transit_h + 1e-9:
+        return None
+    return float(sol.costs["total"])
 
 
 def _left(opts: SolverParams, t0: float, share: float = 1.0) -> SolverParams:
@@ -1450,7 +1502,6 @@ def _solve_model(
     opts: SolverParams,
     say: Callable[[str], None],
     goal: str,
-    start: FreightPlan | None = None,
 ) -> tuple[FreightModel, SolveStats]:
     """Build and solve one freight MILP; raise when there is no plan."""
     from hubnet.solve import run_solver
@@ -1465,11 +1516,11 @@ def _solve_model(
         + ", ".join(f"{v} {k} legs" for k, v in sorted(model.lanes.items()))
         + f"; {len(model.direct)} OD pairs may go direct)"
     )
-    if start is not None:
-        set_start(model, start)
     limit = f" (limit {opts.time_limit_s:.0f} s)" if opts.time_limit_s else ""
     say(f"solving for {goal} with {opts.name}{limit}")
-    stats = run_solver(model, opts, say)
+    # CBC 2.10's default preprocessing (it finds SOS rows in the allocation)
+    # was seen to stop this model at a non-optimal plan called optimal.
+    stats = run_solver(model, opts, say, cbc_options=("preprocess on",))
     stats = dataclasses.replace(stats, build_seconds=build_seconds)
     if stats.status == "infeasible":
         if fp.max_transit_h is not None:
@@ -1725,16 +1776,6 @@ def starting_freight_plan(
                 if n:
                     dispatches[tier, a, b, c, way] = float(n)
     return FreightPlan(tuple(sorted(hubs)), assign, shares, dispatches)
-
-
-def set_start(model: FreightModel, plan: FreightPlan) -> None:
-    """Give the solver ``plan`` as its starting point (values of the integer variables)."""
-    for (i, k), v in model.assign.items():
-        v.setInitialValue(1 if int(plan.assign[i]) == k else 0)
-    for key, v in model.vehicles.items():
-        v.setInitialValue(plan.dispatches.get(key, 0.0))
-    for pair, v in model.all_direct.items():
-        v.setInitialValue(1 if plan.direct.get(pair, 0.0) >= 1.0 else 0)
 
 
 def improve_hubs(

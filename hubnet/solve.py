@@ -154,8 +154,9 @@ def _highs(opts: SolverParams, log_path: str, progress: Progress) -> pulp.LpSolv
     )
 
 
-def _cbc(opts: SolverParams, log_path: str) -> pulp.LpSolver:
+def _cbc(opts: SolverParams, log_path: str, extra: Sequence[str] = ()) -> pulp.LpSolver:
     return pulp.PULP_CBC_CMD(
+        options=list(extra),
         msg=opts.log,
         timeLimit=opts.time_limit_s,
         gapRel=opts.gap,
@@ -177,8 +178,16 @@ def _cbc_bound(log_text: str) -> float | None:
     return None
 
 
-def run_solver(model: HubModel, opts: SolverParams, progress: Progress = _quiet) -> SolveStats:
+def run_solver(
+    model: HubModel,
+    opts: SolverParams,
+    progress: Progress = _quiet,
+    cbc_options: Sequence[str] = (),
+) -> SolveStats:
     """Run the chosen solver on a built model.
+
+    ``cbc_options`` are extra CBC command-line options (for example
+    ``"preprocess on"``), used only when CBC solves.
 
     Returns
     -------
@@ -230,7 +239,7 @@ def run_solver(model: HubModel, opts: SolverParams, progress: Progress = _quiet)
         watcher = _LogWatcher(log_path, progress)
         watcher.start()
         try:
-            prob.solve(_cbc(opts, log_path))
+            prob.solve(_cbc(opts, log_path, cbc_options))
             log_text = Path(log_path).read_text(errors="replace")
         finally:
             watcher.done.set()
