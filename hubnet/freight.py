@@ -1265,8 +1265,20 @@ def _plan_figures(
     total_volume: float,
     by_class: Mapping[int, Mapping[str, float]],
 ) -> dict[str, object]:
-    """Plan-wide freight figures for :attr:`Solution.freight` and summary.json."""
+    """Plan-wide freight figures for :attr:`Solution.freight` and summary.json.
+
+    ``vehicles`` counts, for each daily dispatch, the vehicles needed to run
+    it every day: one per started 24 hours of its round trip (one-way run,
+    when round trips are off), so a 30-hour round trip needs two.
+    """
     dispatches = float(sum(plan.dispatches.values()))
+    vehicles = 0.0
+    for (_, a, b, c, way), n in plan.dispatches.items():
+        s_, t_ = (b, a) if way == 1 else (a, b)
+        hours = float(tables.transit_h[c, s_, t_])
+        if fp.round_trips:
+            hours += float(tables.transit_h[c, t_, s_])
+        vehicles += n * max(1, math.ceil(hours / 24.0 - 1e-9))
     vkm = float(sum(g.vehicle_km or 0.0 for g in legs))
     ttw = float(sum(g.co2e_ttw_kg or 0.0 for g in legs))
     wtw = float(sum(g.co2e_wtw_kg or 0.0 for g in legs))
@@ -1289,7 +1301,7 @@ def _plan_figures(
         return hours / total_volume if total_volume else 0.0
 
     return {
-        "vehicles": dispatches,
+        "vehicles": vehicles,
         "dispatches": dispatches,
         "vehicle_km": vkm,
         "unit_km": float(sum(g.volume * g.distance_km for g in legs)),
@@ -1436,6 +1448,8 @@ def solve_freight(
     # with a wrong objective (tests/test_freight.py). It is kept instead, and
     # returned when the solver ends with nothing better.
     fallback = _priced_start(data, st, params, fp, start)
+    if fallback is not None:
+        say(f"starting plan costs {fallback:,.2f}; kept in case the solver finds nothing better")
     try:
         model, stats = _solve_model(data, st, params, fp, _left(opts, t0), say, "least cost")
     except NoSolutionError:

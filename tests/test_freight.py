@@ -145,8 +145,9 @@ def solve(
     assert sol.stats.status == "optimal"
     assert sol.objective_check is not None
     # Re-priced within the solver's tolerances: 1e-6 on feasibility and
-    # integrality, and evaluate_freight sends a direct share within 1e-5 of
-    # the network's volume of 1 wholly direct, which moves its value of time.
+    # integrality; and when a direct share leaves off less than 1e-5 of the
+    # network's volume, evaluate_freight sends that speck direct too, which
+    # moves its value of time a little.
     assert abs(sol.objective_check) <= 1e-4 * max(1.0, abs(sol.costs["total"]))
     return sol
 

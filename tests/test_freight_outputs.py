@@ -289,7 +289,7 @@ def test_summary_agrees_with_the_tables(
         assert rec["co2e_wtw_kg"] == pytest.approx(own["co2e_wtw_kg"].sum(), abs=1e-3)
         assert rec["payload"] == pytest.approx(payload(cls), abs=1e-6)
     assert by_class["van"]["payload_limit"] == "kg"
-    # one vehicle does one round trip a day
+    # every round trip here is shorter than 24 h: one vehicle per daily dispatch
     assert s["dispatches"] == sum(rec["dispatches"] for rec in by_class.values())
     assert s["vehicles"] == s["dispatches"] == legs["dispatches"].sum() / 2
     volume = routes["volume_per_day"]

@@ -143,11 +143,16 @@ def status_text(summary: Mapping[str, Any]) -> str:
     --------
     >>> status_text({"status": "optimal", "gap": 0.0})
     'optimal (proven)'
+    >>> status_text({"status": "optimal", "gap": 0.0099})
+    'optimal within 0.99 % (proven)'
     >>> status_text({"status": "time_limit", "gap": 0.0123})
     'time limit reached: not proven optimal, gap 1.23 %'
     """
     status = str(summary.get("status") or "unknown")
     if status == "optimal":
+        gap = summary.get("gap")
+        if isinstance(gap, int | float) and gap > 1e-6:
+            return f"optimal within {fmt_gap(gap)} (proven)"
         return "optimal (proven)"
     if status == "time_limit":
         return f"time limit reached: not proven optimal, gap {fmt_gap(summary.get('gap'))}"

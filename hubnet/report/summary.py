@@ -169,6 +169,17 @@ def _plan_cautions(sol: Solution, check: float | None) -> list[str]:
                 f"per day, which differs from the solver's objective {stats.objective:.2f} "
                 f"by {check:.4g}; please report this as a possible defect."
             )
+    if sol.freight:
+        out.append(
+            "Drivers' hours are checked run by run (daily driving and breaks, with relays or "
+            "a second driver where a run is longer than one driver's day); weekly limits, "
+            "daily and weekly rest, duty rosters and whether one driver can also drive the "
+            "return run are not modelled."
+        )
+        out.append(
+            "Vehicle counts assume a vehicle repeats its round trip as soon as it is back; "
+            "they are not a vehicle schedule."
+        )
     for h in sol.hubs:
         use = h.utilisation
         if use is not None and use > 1 + OBJECTIVE_CHECK_TOLERANCE:
@@ -398,7 +409,7 @@ def summary_dict(
         "costs": {k: _round(sol.costs[k], MONEY_DECIMALS) for k in cost_keys},
         "volume_unit": sol.volume_unit,
         "total_volume": _round(sum(r.volume for r in sol.routes), VOLUME_DECIMALS),
-        "od_pairs": len(sol.routes),
+        "od_pairs": len({(r.origin, r.destination) for r in sol.routes}),
         "legs_by_tier": legs_by_tier,
         "unit_km": _round(sum(g.unit_km for g in sol.legs), KM_DECIMALS),
         "rank_size_exponent": _round(rank_size_exponent(sol), 6),
