@@ -57,7 +57,7 @@ from hubnet.errors import InfeasibleError, InputError, NoSolutionError, Problem,
 from hubnet.fleet import TIERS, FreightParams, Tier, VehicleClass
 from hubnet.hours import load_rules, time_legs
 from hubnet.model import HubModel, check_plan_possible
-from hubnet.solution import HubRecord, Leg, Route, Solution, SolveStats
+from hubnet.solution import Leg, Route, Solution, SolveStats, hub_records
 
 #: Transit times within this many hours of the allowance count as on time.
 TIME_TOLERANCE_H = 1e-6
@@ -479,11 +479,6 @@ def restrict_allocations(data: NetworkData, st: _Setup) -> int:
     return removed
 
 
-def _hhmm(hours: float) -> str:
-    h = hours % 24.0
-    return f"{int(h):02d}:{int(round((h - int(h)) * 60)) % 60:02d}"
-
-
 def unreachable_pairs(data: NetworkData, st: _Setup, limit: int = 20) -> list[str]:
     """Sentences naming OD pairs that miss their deadline even on their fastest path."""
     ids = data.ids
@@ -492,6 +487,7 @@ def unreachable_pairs(data: NetworkData, st: _Setup, limit: int = 20) -> list[st
     late = 0
     for i, j in zip(rows.tolist(), cols.tolist(), strict=True):
         paths = _path_matrix(st, i, j)
+        st.late.setdefault((i, j), paths > st.allow[i, j] + TIME_TOLERANCE_H)  # see late_paths
         best = float(paths.min()) if paths.size else math.inf
         direct = st.direct_t[i, j] if (i, j) in st.direct_pairs else math.inf
         fastest = min(best, direct)
@@ -830,9 +826,12 @@ def build_freight_model(
         # Valid for whole vehicles: a leg that carries anything needs at least
         # one vehicle. Much tighter than the payload rows alone when a leg's
         # volume is a fraction of a payload (most feeder legs).
-        by_run: dict[tuple[str, int, int, int], list[pulp.LpVariable]] = defaultdict(list)
-        for (tier, a, b, _c, way), v in vehicles.items():
-            by_run[tier, a, b, way if not fp.round_trips else 0].append(v)
+        # Vehicle variables of each run (tier, a, b, direction), with their class.
+        by_run: dict[tuple[str, int, int, int], list[tuple[int, pulp.LpVariable]]] = defaultdict(
+            list
+        )
+        for (tier, a, b, c, way), v in vehicles.items():
+            by_run[tier, a, b, way].append((c, v))
         # FIX (found by tests/test_freight.py): only volume that cannot go direct
         # forces a feeder vehicle; a terminal whose volume may all go direct needs none.
         hub_out, hub_in = out_vol.copy(), in_vol.copy()
@@ -847,7 +846,7 @@ def build_freight_model(
                 runs = by_run.get(("feeder", i, k, way), [])
                 if vol > 1e-9 and runs:
                     prob += (
-                        expr([(v, 1.0) for v in runs] + [(xv, -1.0)]) >= 0,
+                        expr([(v, 1.0) for _, v in runs] + [(xv, -1.0)]) >= 0,
                         (f"one_vehicle_feeder_{i}_{k}_{way}"),
                     )
         # Valid for whole vehicles: the vehicles on terminal i's feeder leg
@@ -863,11 +862,7 @@ def build_freight_model(
             for way, vol, from_hub in needs:
                 if vol <= 1e-9:
                     continue
-                keyed = [
-                    (key[3], v)
-                    for key, v in vehicles.items()
-                    if key[0] == "feeder" and key[1] == i and key[2] == k and key[4] == way
-                ]
+                keyed = by_run.get(("feeder", i, k, way), [])
                 if not keyed:
                     continue
                 if fp.round_trips:
@@ -895,7 +890,7 @@ def build_freight_model(
                 runs = by_run.get(("direct", i, j, 0), [])
             if runs:
                 prob += (
-                    expr([(v, 1.0) for v in runs] + [(dv, -1.0)]) >= 0,
+                    expr([(v, 1.0) for _, v in runs] + [(dv, -1.0)]) >= 0,
                     (f"one_vehicle_direct_{i}_{j}"),
                 )
 
@@ -908,7 +903,7 @@ def build_freight_model(
         if not late.any():
             continue
         escape = None
-        if (i, j) in direct and st.direct_t[i, j] <= st.allow[i, j] + TIME_TOLERANCE_H:
+        if (i, j) in direct and _direct_on_time(st, i, j):
             escape = _var(prob, f"all_direct_{i}_{j}", 0, 1, pulp.LpBinary)
             all_direct[i, j] = escape
             prob += direct[i, j] - escape >= 0, f"all_direct_{i}_{j}"
@@ -1124,6 +1119,9 @@ def evaluate_freight(
     legs: list[Leg] = []
     problems: list[str] = []
     order = sorted(runs.items(), key=lambda kv: (TIERS.index(kv[0][0]), kv[0][1:]))
+    # cost and volume of each leg (both directions share a round trip's cost)
+    lane_cost: dict[tuple[str, int, int], float] = defaultdict(float)
+    lane_volume: dict[tuple[str, int, int], float] = defaultdict(float)
     for (tier, s, t), got in order:
         counts = {c: n for c, (n, _) in got.items() if n > 1e-9}
         if not counts:
@@ -1143,6 +1141,9 @@ def evaluate_freight(
             rec["co2e_ttw_kg"] += n * float(tables.co2e_ttw_kg[c, s, t])
             rec["co2e_wtw_kg"] += n * float(tables.co2e_wtw_kg[c, s, t])
         tier_cost[tier] += cost
+        lane = (tier, min(s, t), max(s, t)) if fp.round_trips else (tier, s, t)
+        lane_cost[lane] += cost
+        lane_volume[lane] += volume
         used = list(counts)
         legs.append(
             Leg(
@@ -1172,15 +1173,6 @@ def evaluate_freight(
             problems.append(
                 f"{key[0]} leg {ids[key[1]]} -> {ids[key[2]]}: {volume:.3f} units, no vehicle"
             )
-    # cost per unit of each leg (both directions share a round trip's cost)
-    lane_cost: dict[tuple[str, int, int], float] = {}
-    lane_volume: dict[tuple[str, int, int], float] = defaultdict(float)
-    for g, (tier, s, t) in zip(
-        legs, [(g.tier, data.index(g.origin), data.index(g.destination)) for g in legs], strict=True
-    ):
-        key = (tier, min(s, t), max(s, t)) if fp.round_trips else (tier, s, t)
-        lane_cost[key] = lane_cost.get(key, 0.0) + g.cost
-        lane_volume[key] += g.volume
     time_cost = 0.0
     for i, j, vol, legs_used, t, hub_idx in route_parts:
         if t > st.allow[i, j] + 1e-6:
@@ -1216,18 +1208,7 @@ def evaluate_freight(
             "the plan read back from the solver is not valid:\n  " + "\n  ".join(problems[:20])
         )
 
-    records = [
-        HubRecord(
-            id=data.sites[h].id,
-            throughput=float(through[h]),
-            inbound=float(inbound[h]),
-            capacity=data.sites[h].sort_capacity,
-            terminals=tuple(ids[i] for i in sorted(users.get(h, set()))),
-            fixed_cost=data.sites[h].hub_fixed_cost,
-            handling_cost=float(through[h] * handling[h]),
-        )
-        for h in hubs
-    ]
+    records = hub_records(data, hubs, through, inbound, users, handling)
     costs = {
         "hub_fixed": float(sum(data.sites[h].hub_fixed_cost for h in hubs)),
         "handling": float(handling_cost),
@@ -1712,7 +1693,7 @@ def starting_freight_plan(
     assign = np.asarray(assign, dtype=int).copy()
     direct_ok = np.zeros_like(st.w, dtype=bool)
     for i, j in st.direct_pairs:
-        direct_ok[i, j] = st.direct_t[i, j] <= st.allow[i, j] + TIME_TOLERANCE_H
+        direct_ok[i, j] = _direct_on_time(st, i, j)
     deadline = time.perf_counter() + max_seconds
     late = _late_count(st, assign, direct_ok)
     while late.sum() and time.perf_counter() < deadline:

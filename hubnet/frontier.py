@@ -52,7 +52,6 @@ from hubnet.errors import (
     InfeasibleError,
     InputError,
     NoSolutionError,
-    OutputExistsError,
     Problem,
     SolverError,
 )
@@ -695,43 +694,12 @@ def frontier_png(points: Sequence[FrontierPoint], *, title: str = "") -> bytes:
 def preflight_frontier(out_dir: Path, force: bool) -> None:
     """Check that a frontier folder can be written, before anything is solved.
 
-    Raises
-    ------
-    OutputExistsError
-        When ``out_dir`` exists and ``force`` is false; or, with ``force``,
-        when it is a file, a link, or a non-empty folder without
-        ``frontier.csv`` (hubnet replaces only its own frontier folders).
-    HubnetError
-        When ``out_dir`` names no folder or its nearest existing parent is
-        not a writable folder.
+    The run-folder check (:func:`hubnet.runfolder.preflight`), with
+    ``frontier.csv`` as the file that marks a folder hubnet may replace.
     """
-    if out_dir.name in ("", ".", ".."):
-        raise HubnetError(f"frontier folder {str(out_dir)!r}: give the path of a folder to create")
-    if os.path.lexists(out_dir):
-        if not force:
-            raise OutputExistsError(
-                f"frontier folder {str(out_dir)!r} already exists: choose another folder, "
-                "or ask for it to be replaced (force)"
-            )
-        if out_dir.is_symlink() or not out_dir.is_dir():
-            raise OutputExistsError(
-                f"{str(out_dir)!r} exists and is not a folder (or is a link): "
-                "hubnet will not replace it"
-            )
-        if not (out_dir / FRONTIER_CSV).is_file() and any(out_dir.iterdir()):
-            raise OutputExistsError(
-                f"{str(out_dir)!r} exists and does not look like a hubnet frontier folder "
-                f"(no {FRONTIER_CSV}): hubnet will not replace it; remove it yourself or "
-                "choose another folder"
-            )
-    ancestor = out_dir.absolute().parent
-    while not ancestor.exists():
-        ancestor = ancestor.parent
-    if not ancestor.is_dir() or not os.access(ancestor, os.W_OK | os.X_OK):
-        raise HubnetError(
-            f"cannot create frontier folder {str(out_dir)!r}: {str(ancestor)!r} is not a "
-            "writable folder"
-        )
+    from hubnet.runfolder import preflight
+
+    preflight(out_dir, force, kind="frontier folder", marker=FRONTIER_CSV)
 
 
 def _write_file(path: Path, data: bytes) -> None:

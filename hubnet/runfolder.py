@@ -45,8 +45,18 @@ TABLE_FILES: tuple[str, ...] = (
 STANDARD_FILES: tuple[str, ...] = (SUMMARY_FILE, *TABLE_FILES, CONFIG_FILE)
 
 
-def preflight(out_dir: str | Path, force: bool = False) -> Path:
-    """Check that a run folder can be written, before any long work starts.
+def preflight(
+    out_dir: str | Path,
+    force: bool = False,
+    *,
+    kind: str = "run folder",
+    marker: str = SUMMARY_FILE,
+) -> Path:
+    """Check that a run folder (or another hubnet output folder) can be written.
+
+    ``kind`` names the folder in messages and ``marker`` is the file that
+    makes an existing folder one of hubnet's own, which ``force`` may
+    replace (``summary.json`` for run folders).
 
     Call this before solving, so a user learns at once that the folder
     exists (or cannot be written) rather than after the solve.
@@ -79,11 +89,11 @@ def preflight(out_dir: str | Path, force: bool = False) -> Path:
     """
     out_dir = Path(out_dir)
     if out_dir.name in ("", ".", ".."):
-        raise HubnetError(f"run folder {str(out_dir)!r}: give the path of a folder to create")
+        raise HubnetError(f"{kind} {str(out_dir)!r}: give the path of a folder to create")
     if os.path.lexists(out_dir):
         if not force:
             raise OutputExistsError(
-                f"run folder {str(out_dir)!r} already exists: choose another folder, "
+                f"{kind} {str(out_dir)!r} already exists: choose another folder, "
                 "or ask for it to be replaced (force)"
             )
         if out_dir.is_symlink() or not out_dir.is_dir():
@@ -91,20 +101,20 @@ def preflight(out_dir: str | Path, force: bool = False) -> Path:
                 f"{str(out_dir)!r} exists and is not a folder (or is a link): "
                 "hubnet will not replace it"
             )
-        if not (out_dir / SUMMARY_FILE).is_file() and any(out_dir.iterdir()):
+        if not (out_dir / marker).is_file() and any(out_dir.iterdir()):
             raise OutputExistsError(
-                f"{str(out_dir)!r} exists and does not look like a hubnet run folder "
-                f"(no {SUMMARY_FILE}): hubnet will not replace it; remove it yourself "
+                f"{str(out_dir)!r} exists and does not look like a hubnet {kind} "
+                f"(no {marker}): hubnet will not replace it; remove it yourself "
                 "or choose another folder"
             )
     ancestor = out_dir.absolute().parent
     while not ancestor.exists():
         ancestor = ancestor.parent
     if not ancestor.is_dir():
-        raise HubnetError(f"cannot create run folder {str(out_dir)!r}: {ancestor} is a file")
+        raise HubnetError(f"cannot create {kind} {str(out_dir)!r}: {ancestor} is a file")
     if not os.access(ancestor, os.W_OK | os.X_OK):
         raise HubnetError(
-            f"cannot create run folder {str(out_dir)!r}: folder {str(ancestor)!r} is not writable"
+            f"cannot create {kind} {str(out_dir)!r}: folder {str(ancestor)!r} is not writable"
         )
     return out_dir
 

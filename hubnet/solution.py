@@ -327,6 +327,35 @@ def best_hub_pairs(
     return cost, h[k_idx], h[m_idx]
 
 
+def hub_records(
+    data: NetworkData,
+    hubs: Sequence[int],
+    through: np.ndarray,
+    inbound: np.ndarray,
+    users: Mapping[int, set[int]],
+    handling: np.ndarray,
+) -> list[HubRecord]:
+    """One :class:`HubRecord` per open hub, from per-site volumes (units per day).
+
+    ``through`` and ``inbound`` are ``(n,)`` volumes sorted at and taken in
+    by each site, ``users`` the terminals of each hub, ``handling`` the
+    handling cost per unit of each site.
+    """
+    ids = data.ids
+    return [
+        HubRecord(
+            id=data.sites[h].id,
+            throughput=float(through[h]),
+            inbound=float(inbound[h]),
+            capacity=data.sites[h].sort_capacity,
+            terminals=tuple(ids[i] for i in sorted(users.get(h, set()))),
+            fixed_cost=data.sites[h].hub_fixed_cost,
+            handling_cost=float(through[h] * handling[h]),
+        )
+        for h in hubs
+    ]
+
+
 def evaluate_plan(
     data: NetworkData,
     d: np.ndarray,
@@ -424,20 +453,7 @@ def evaluate_plan(
     if assign is not None:
         for i in range(n):
             users.setdefault(int(assign[i]), set()).add(i)
-    records = []
-    for h in hubs:
-        site = data.sites[h]
-        records.append(
-            HubRecord(
-                id=site.id,
-                throughput=float(through[h]),
-                inbound=float(inbound[h]),
-                capacity=site.sort_capacity,
-                terminals=tuple(ids[i] for i in sorted(users.get(h, set()))),
-                fixed_cost=site.hub_fixed_cost,
-                handling_cost=float(through[h] * handling[h]),
-            )
-        )
+    records = hub_records(data, hubs, through, inbound, users, handling)
     costs = dict(totals)
     costs["hub_fixed"] = float(sum(data.sites[h].hub_fixed_cost for h in hubs))
     costs["total"] = float(sum(costs.values()))
