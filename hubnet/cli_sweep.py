@@ -266,6 +266,14 @@ def sweep_command(
         bool,
         typer.Option("--resume", help="Keep complete run folders; solve only the others."),
     ] = False,
+    in_order: Annotated[
+        bool,
+        typer.Option(
+            "--in-order",
+            help="Start the scenarios in the sweep file's order; by default the ones the "
+            "run history says took longest start first, which shortens the sweep.",
+        ),
+    ] = False,
     quiet: Annotated[
         bool, typer.Option("--quiet", "-q", help="Print only errors and the table.")
     ] = False,
@@ -324,6 +332,7 @@ def sweep_command(
                 checked=True,
                 on_update=display.update,
                 client=starting.client() if starting is not None else None,
+                longest=not in_order,
             )
     except HubnetError as err:
         _fail(err, verbose)

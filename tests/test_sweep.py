@@ -25,7 +25,7 @@ from typer.testing import CliRunner
 
 from hubnet.cli import app
 from hubnet.errors import EXIT_OUTPUT_EXISTS, OutputExistsError
-from hubnet.history import History
+from hubnet.history import History, RunRecord
 from hubnet.jobs import run_job
 from hubnet.runfolder import STANDARD_FILES
 from hubnet.scenarios import load_sweep
@@ -33,6 +33,7 @@ from hubnet.sweep import (
     EXIT_SCENARIOS_FAILED,
     SweepState,
     SweepTask,
+    longest_first,
     run_sweep,
     run_task,
 )
@@ -354,3 +355,84 @@ def test_cli_sweep_on_the_default_local_cluster(tmp_path: Path) -> None:
     assert [o["status"] for o in report["outcomes"]] == ["optimal", "optimal"]
     assert all(o["worker"].startswith("tcp://127.0.0.1:") for o in report["outcomes"])
     assert report["scenarios"][1]["cost_change"] > 0
+
+
+# --------------------------------------------------------------------------
+# Start order: the longest scenarios (by the run history) first
+# --------------------------------------------------------------------------
+
+
+def _task(name: str, tmp_path: Path) -> SweepTask:
+    return SweepTask(
+        name=name,
+        base=str(DEMO),
+        overrides={},
+        edits={},
+        out_dir=str(tmp_path / name),
+        history=None,
+        run_id=f"s1.{name}",
+        sweep="s",
+    )
+
+
+def test_longest_first_orders_by_the_latest_recorded_wall_time(tmp_path: Path) -> None:
+    db = f"sqlite:///{tmp_path / 'h.sqlite'}"
+    rows = [
+        ("r1", "a", "s", "optimal", 5.0),
+        ("r2", "b", "s", "time_limit", 50.0),
+        ("r3", "c", "s", "optimal", 20.0),
+        ("r4", "a", "s", "optimal", 100.0),  # later than r1: this one counts
+        ("r5", "c", "s", "error", 900.0),  # a failed run says nothing of the time
+        ("r6", "d", "other", "optimal", 999.0),  # another sweep's scenario of that name
+    ]
+    with History(db) as h:
+        for run_id, scenario, sweep, status, wall in rows:
+            h.record(RunRecord(run_id, scenario, status, sweep=sweep, wall_seconds=wall))
+    tasks = [_task(n, tmp_path) for n in "abcde"]
+    # Unknown scenarios first in the order given (they may be long), then
+    # the known ones by their latest wall time, longest first.
+    assert [t.name for t in longest_first(tasks, db, "s")] == ["d", "e", "a", "b", "c"]
+    assert [t.name for t in longest_first(tasks, None, "s")] == list("abcde")
+    assert [t.name for t in longest_first(tasks, db, "never-run")] == list("abcde")
+    # An unreadable history only costs the optimisation, never the sweep.
+    (tmp_path / "not-a-db.sqlite").write_text("this is not SQLite", encoding="utf-8")
+    bad = f"sqlite:///{tmp_path / 'not-a-db.sqlite'}"
+    assert [t.name for t in longest_first(tasks, bad, "s")] == list("abcde")
+
+
+@pytest.mark.slow
+def test_cluster_starts_the_longest_scenarios_first(tmp_path: Path) -> None:
+    sweep = load_sweep(
+        write_sweep(tmp_path, "[scenarios.a]\n[scenarios.b]\n[scenarios.c]\ndemand_scale = 1.1\n"),
+        check=True,
+    )
+    db = f"sqlite:///{tmp_path / 'h.sqlite'}"
+    with History(db) as h:  # as if an earlier night had found c slowest, then a
+        for name, wall in (("a", 30.0), ("b", 2.0), ("c", 60.0)):
+            h.record(
+                RunRecord(f"old.{name}", name, "optimal", sweep="test-sweep", wall_seconds=wall)
+            )
+    starts: list[str] = []
+
+    def seen(state: SweepState) -> None:
+        for name in state.running:
+            if name not in starts:
+                starts.append(name)
+
+    # One worker runs one scenario at a time, so the start order is the order
+    # the scheduler hands them out.
+    report = run_sweep(sweep, tmp_path / "out", workers=1, history=db, checked=True, on_update=seen)
+    assert starts == ["c", "a", "b"]
+    assert [o.name for o in report.outcomes] == ["a", "b", "c"]  # reported in the file's order
+    assert report.exit_code == 0
+    starts.clear()
+    run_sweep(
+        sweep,
+        tmp_path / "out2",
+        workers=1,
+        history=None,
+        checked=True,
+        on_update=seen,
+        longest=False,
+    )
+    assert starts == ["a", "b", "c"]
