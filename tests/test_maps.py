@@ -183,6 +183,11 @@ def test_vehicle_class_column_colours_lines_by_class(run_dir: Path, tmp_path: Pa
     assert '"color": "#0072B2"' in page and '"color": "#E69F00"' in page
     assert "artic</div>" in page and "rigid</div>" in page
     assert page.count("Vehicle class") == len(legs)  # in every leg's popup
+    # Colour now shows the class, so trunk legs (and only they) get a casing.
+    trunks = int((legs["tier"] == "trunk").sum())
+    assert trunks > 0 and page.count('"className": "hubnet-casing"') == trunks
+    plain = (run_dir / "map.html").read_text(encoding="utf-8")  # coloured by tier
+    assert "hubnet-casing" not in plain
 
 
 def test_planar_sites_draw_without_tiles(run_dir: Path, tmp_path: Path) -> None:

@@ -103,6 +103,11 @@ EMPTY_WIDTH_PX = 1.5
 EMPTY_DASH = "2 6"
 #: Dash pattern of direct legs.
 DIRECT_DASH = "6 5"
+#: On maps coloured by vehicle class, trunk legs are drawn over a dark
+#: casing this many pixels wider, so the fast tier stands out from the
+#: feeders whatever vehicles run on it.
+TRUNK_CASING_PX = 2.0
+TRUNK_CASING_COLOUR = "#202124"
 #: Radius in pixels of a terminal, and of a hub of no and of the largest throughput.
 TERMINAL_RADIUS_PX = 4.5
 HUB_MIN_RADIUS_PX = 7.0
@@ -506,10 +511,16 @@ def _headline(run: RunData, note: str = "", *, open_box: bool = True) -> str:
     )
 
 
-def _line_key(colour: str, width: float, dash: str | None = None) -> str:
+def _line_key(colour: str, width: float, dash: str | None = None, cased: bool = False) -> str:
     dash_attr = f" stroke-dasharray='{dash}'" if dash else ""
+    casing = (
+        f"<line x1='2' y1='7' x2='32' y2='7' stroke='{TRUNK_CASING_COLOUR}' "
+        f"stroke-width='{width + TRUNK_CASING_PX}' stroke-linecap='round'/>"
+        if cased
+        else ""
+    )
     return (
-        f"<span class='hn-k'><svg width='34' height='14' aria-hidden='true'>"
+        f"<span class='hn-k'><svg width='34' height='14' aria-hidden='true'>{casing}"
         f"<line x1='2' y1='7' x2='32' y2='7' stroke='{colour}' stroke-width='{width}' "
         f"stroke-linecap='round'{dash_attr}/></svg></span>"
     )
@@ -560,9 +571,8 @@ def _legend(
             )
         for tier in tiers:
             dash = DIRECT_DASH if tier == "direct" else None
-            parts.append(
-                f"<div>{_line_key('#555', 2, dash)}{esc(TIER_WORDS.get(tier, tier))}</div>"
-            )
+            key = _line_key("#9aa0a6", 2, dash, cased=tier == "trunk")
+            parts.append(f"<div>{key}{esc(TIER_WORDS.get(tier, tier))}</div>")
     else:
         for tier in tiers:
             word = TIER_WORDS.get(tier, f"{tier} legs")
@@ -772,10 +782,23 @@ def build_map(run: RunData, *, tiles: str = DEFAULT_TILES, compact: bool = False
             if back:
                 empty += 1
                 css += " hubnet-empty"
+            path = _bend(where[a], where[b], planar)
+            weight = EMPTY_WIDTH_PX if back else _width(volume, largest_volume)
+            if class_colours and tier == "trunk" and not back:
+                casing = folium.PolyLine(
+                    path,
+                    color=TRUNK_CASING_COLOUR,
+                    weight=weight + TRUNK_CASING_PX,
+                    opacity=0.6,
+                    class_name="hubnet-casing",
+                )
+                casing.options["pane"] = "hubnetLegs"
+                casing.options["interactive"] = False  # clicks go to the leg above
+                casing.add_to(group)
             line = folium.PolyLine(
-                _bend(where[a], where[b], planar),
+                path,
                 color=colour,
-                weight=EMPTY_WIDTH_PX if back else _width(volume, largest_volume),
+                weight=weight,
                 opacity=0.85,
                 dash_array=EMPTY_DASH if back else (DIRECT_DASH if tier == "direct" else None),
                 class_name=css,
