@@ -8,6 +8,7 @@ import re
 import shutil
 from pathlib import Path
 
+import pandas as pd
 import pytest
 from reportdata import SCENARIO_NAME, XSS_NAME, tiny_run
 from typer.testing import CliRunner
@@ -82,6 +83,15 @@ def test_cautions_hierarchy_charts_and_maps(runs: tuple[Path, Path]) -> None:
     for caution in STANDING_CAUTIONS:
         assert html.escape(caution) in page
     assert page.count("<table class='hierarchy'>") == 2
+    # Tiers across, measures down: one column per row of hierarchy.csv.
+    tiers = list(pd.read_csv(runs[0] / "hierarchy.csv")["tier"].astype(str))
+    first = page[page.index("<table class='hierarchy'>") :]
+    first = first[: first.index("</table>")]
+    head = re.findall(r"<th class='n(?: total)?'>([^<]*)</th>", first[: first.index("</thead>")])
+    assert head == tiers and "all" in tiers
+    assert first.count("<tr><th>Legs</th>") == 1
+    body = first[first.index("<tbody>") :]
+    assert body.count("<td class='n total'>") == body.count("<tr><th>") >= 9
     assert page.count("<svg class='chart'") == 2
     assert "Cost per day by tier" in page and "Leg volume by rank" in page
     assert page.count("<iframe class='map'") == 2

@@ -106,7 +106,7 @@ td.d { color: var(--muted); text-align: right; font-variant-numeric: tabular-num
   white-space: nowrap; }
 tbody th { text-align: left; font-weight: 500; white-space: nowrap; }
 tr.sub th { padding-left: 24px; font-weight: 400; color: var(--muted); }
-tr.total th, tr.total td { font-weight: 650; }
+tr.total th, tr.total td, td.total, th.total { font-weight: 650; }
 .unit { color: var(--muted); font-weight: 400; font-size: 12px; }
 .runs li { margin: 2px 0; }
 .folder { color: var(--muted); font-size: 12px; overflow-wrap: anywhere; }
@@ -122,7 +122,7 @@ figure { margin: 8px 0 18px; }
 figure h3 { margin-top: 4px; }
 svg.chart { width: 100%; max-width: 760px; height: auto; display: block; }
 #headline thead th { white-space: normal; max-width: 240px; vertical-align: bottom; }
-table.hierarchy thead th { white-space: normal; min-width: 64px; vertical-align: bottom; }
+table.hierarchy thead th { min-width: 88px; }
 .legend span { margin-right: 16px; white-space: nowrap; }
 .legend svg { vertical-align: -1px; margin-right: 4px; }
 iframe.map { width: 100%; height: 640px; border: 1px solid var(--line); border-radius: 4px; }
@@ -418,7 +418,7 @@ def _hierarchy(runs: Sequence[RunData], labels: Sequence[str]) -> str:
     parts = [
         "<h2 id='hierarchy'>Flow hierarchy</h2><p class='note'>Per tier: how many legs, how "
         "much volume, unit-km and transport cost; volume counts once on every leg it travels, "
-        "so the all row exceeds the volume sent.</p>"
+        "so the all column exceeds the volume sent.</p>"
     ]
     for i, (label, run) in enumerate(zip(labels, runs, strict=True)):
         table = run.table("hierarchy")
@@ -427,20 +427,24 @@ def _hierarchy(runs: Sequence[RunData], labels: Sequence[str]) -> str:
             parts.append("<p class='note'>This run folder has no hierarchy.csv.</p>")
             continue
         unit = run.volume_unit
-        columns = [c for c in _HIERARCHY_COLUMNS if c[0] in table.columns]
+        # Measures down, tiers across: a handful of tiers never needs a
+        # sideways scroll, however many measures a freight plan adds.
+        records = table.to_dict("records")
+        tiers = [str(r.get("tier", "")) for r in records]
         head = "".join(
-            f"<th class='n'>{esc(title.format(unit=unit))}</th>" for _, title, _ in columns
+            f"<th class='n{' total' if t == 'all' else ''}'>{esc(t)}</th>" for t in tiers
         )
         rows = []
-        for record in table.to_dict("records"):
-            tier = str(record.get("tier", ""))
-            css = " class='total'" if tier == "all" else ""
+        for column, title, kind in _HIERARCHY_COLUMNS:
+            if column not in table.columns:
+                continue
             cells = "".join(
-                f"<td class='n'>{esc(_f(record.get(c), kind))}</td>" for c, _, kind in columns
+                f"<td class='n{' total' if t == 'all' else ''}'>{esc(_f(r.get(column), kind))}</td>"
+                for t, r in zip(tiers, records, strict=True)
             )
-            rows.append(f"<tr{css}><th>{esc(tier)}</th>{cells}</tr>")
+            rows.append(f"<tr><th>{esc(title.format(unit=unit))}</th>{cells}</tr>")
         parts.append(
-            "<div class='scroll'><table class='hierarchy'><thead><tr><th>Tier</th>"
+            "<div class='scroll'><table class='hierarchy'><thead><tr><th>Per tier</th>"
             f"{head}</tr></thead><tbody>{''.join(rows)}</tbody></table></div>"
         )
     return "".join(parts)
