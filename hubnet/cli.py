@@ -14,6 +14,7 @@ from pathlib import Path
 from typing import Annotated
 
 import typer
+from rich.markup import escape
 
 from hubnet.cli_common import err_console, fail
 from hubnet.cli_frontier import frontier_command
@@ -46,7 +47,7 @@ def _progress(quiet: bool) -> Callable[[str], None]:
 
     def say(message: str) -> None:
         if not quiet:
-            _err.print(f"[dim]{time.perf_counter() - start:7.1f} s[/dim]  {message}")
+            _err.print(f"[dim]{time.perf_counter() - start:7.1f} s[/dim]  {escape(message)}")
 
     return say
 

@@ -6,6 +6,7 @@ from typing import NoReturn
 
 import typer
 from rich.console import Console
+from rich.markup import escape
 
 from hubnet.errors import EXIT_ERROR, HubnetError
 
@@ -18,5 +19,6 @@ def fail(err: BaseException, verbose: bool) -> NoReturn:
     if verbose:
         err_console.print_exception()
     code = err.exit_code if isinstance(err, HubnetError) else EXIT_ERROR
-    err_console.print(f"[bold red]error:[/bold red] {err}", markup=True, highlight=False)
+    # escape: messages name config sections such as [inputs], which are not markup
+    err_console.print(f"[bold red]error:[/bold red] {escape(str(err))}", highlight=False)
     raise typer.Exit(code)

@@ -21,6 +21,7 @@ from typing import TYPE_CHECKING, Annotated, Any
 
 import typer
 from rich.console import Console
+from rich.markup import escape
 from rich.table import Table
 
 from hubnet.cli_common import err_console, fail
@@ -189,12 +190,14 @@ class _SweepDisplay:
             cost = f"{o.total_cost:,.2f}" if o.total_cost is not None else "?"
             again = " (complete before: not solved again)" if o.reused else ""
             self.progress.console.print(
-                f"{stamp}[green]done[/green] {o.name}: {o.status}, {len(o.hubs)} hubs, "
+                f"{stamp}[green]done[/green] {escape(o.name)}: {o.status}, {len(o.hubs)} hubs, "
                 f"cost {cost}{again}"
             )
         else:
             first = o.error.splitlines()[0] if o.error else ""
-            self.progress.console.print(f"{stamp}[red]failed[/red] {o.name}: {o.status}: {first}")
+            self.progress.console.print(
+                f"{stamp}[red]failed[/red] {escape(o.name)}: {o.status}: {escape(first)}"
+            )
 
 
 def _money(x: float | None) -> str:
@@ -221,10 +224,10 @@ def _report_table(report: SweepReport) -> Table:
         gap = row["gap"]
         pct = row["cost_change_pct"]
         table.add_row(
-            row["scenario"],
+            escape(row["scenario"]),
             row["status"] + (f" x{row['attempts']}" if row["attempts"] > 1 else ""),
             "" if row["hub_count"] is None else str(row["hub_count"]),
-            row["hubs"].replace(";", " "),
+            escape(row["hubs"].replace(";", " ")),
             _money(row["cost_per_day"]),
             "" if row["cost_change"] is None else f"{row['cost_change']:+,.2f}",
             "" if pct is None else f"{pct:+.2f}",
@@ -383,8 +386,13 @@ def runs_command(
     """List recorded runs, latest last: status, cost, hubs, gap, time and run folder."""
     from dataclasses import asdict
 
-    from hubnet.history import History, resolve_history
+    from hubnet.history import RUN_STATUSES, History, resolve_history
 
+    if status is not None and status not in RUN_STATUSES:
+        raise typer.BadParameter(
+            f"{status!r} is not a run status; use one of {', '.join(RUN_STATUSES)}",
+            param_hint="--status",
+        )
     where = resolve_history(history)
     if where is None:
         _err.print("the run history is off (--history off or HUBNET_HISTORY=off)")
@@ -417,14 +425,14 @@ def runs_command(
         table.add_row(
             str(r.id),
             r.finished_at.replace("T", " ")[:19],
-            r.scenario,
-            r.sweep,
+            escape(r.scenario),
+            escape(r.sweep),
             r.status,
             _money(r.total_cost),
-            " ".join(r.hubs),
+            escape(" ".join(r.hubs)),
             "" if r.gap is None else f"{100 * r.gap:.4f}",
             "" if r.solve_seconds is None else f"{r.solve_seconds:.1f}",
-            r.run_folder or (r.error.splitlines()[0][:60] if r.error else ""),
+            escape(r.run_folder or (r.error.splitlines()[0][:60] if r.error else "")),
         )
     _out.print(table)
 
@@ -446,8 +454,8 @@ def _show(value: Any) -> str:
 
 def _print_comparison(c: RunComparison, max_legs: int) -> None:
     a, b = c.a, c.b
-    _out.print(f"[bold]A[/bold] {a.label} (scenario {a.scenario})")
-    _out.print(f"[bold]B[/bold] {b.label} (scenario {b.scenario})")
+    _out.print(f"[bold]A[/bold] {escape(a.label)} (scenario {escape(a.scenario)})")
+    _out.print(f"[bold]B[/bold] {escape(b.label)} (scenario {escape(b.scenario)})")
     figures = Table(title="figures", title_justify="left")
     for name in ("figure", "A", "B", "B - A", "change %"):
         figures.add_column(name, justify="left" if name == "figure" else "right")
@@ -462,16 +470,20 @@ def _print_comparison(c: RunComparison, max_legs: int) -> None:
             "" if f.pct is None else f"{f.pct:+.2f}",
         )
     _out.print(figures)
-    _out.print(f"hubs opened: {', '.join(c.hubs_opened) or 'none'}")
-    _out.print(f"hubs closed: {', '.join(c.hubs_closed) or 'none'}")
-    _out.print(f"hubs kept: {', '.join(c.hubs_kept) or 'none'}")
+    _out.print(f"hubs opened: {', '.join(c.hubs_opened) or 'none'}", markup=False)
+    _out.print(f"hubs closed: {', '.join(c.hubs_closed) or 'none'}", markup=False)
+    _out.print(f"hubs kept: {', '.join(c.hubs_kept) or 'none'}", markup=False)
     if c.moved is not None:
         if c.moved:
             moves = Table(title=f"{len(c.moved)} terminals changed hub", title_justify="left")
             for name in ("terminal", "hub in A", "hub in B"):
                 moves.add_column(name)
             for m in c.moved:
-                moves.add_row(m.terminal, " ".join(m.before) or "-", " ".join(m.after) or "-")
+                moves.add_row(
+                    escape(m.terminal),
+                    escape(" ".join(m.before) or "-"),
+                    escape(" ".join(m.after) or "-"),
+                )
             _out.print(moves)
         else:
             _out.print("terminals that changed hub: none")
@@ -479,7 +491,9 @@ def _print_comparison(c: RunComparison, max_legs: int) -> None:
         for word, legs in (("added", c.legs_added), ("removed", c.legs_removed)):
             shown = ", ".join(f"{t} {o}>{d}" for t, o, d in legs[:max_legs])
             more = f", ... ({len(legs) - max_legs} more)" if len(legs) > max_legs else ""
-            _out.print(f"legs {word}: {len(legs)}" + (f": {shown}{more}" if legs else ""))
+            _out.print(
+                f"legs {word}: {len(legs)}" + (f": {shown}{more}" if legs else ""), markup=False
+            )
     if c.inputs:
         inputs = Table(title="inputs", title_justify="left")
         for name in ("input", "same", "A", "B"):
@@ -489,9 +503,9 @@ def _print_comparison(c: RunComparison, max_legs: int) -> None:
             inputs.add_row(i.name, "yes" if i.same else "[bold]differs[/bold]", short_a, short_b)
         _out.print(inputs)
     for s in c.settings:
-        _out.print(f"setting {s.name}: {_show(s.a) or '-'} -> {_show(s.b) or '-'}")
+        _out.print(f"setting {s.name}: {_show(s.a) or '-'} -> {_show(s.b) or '-'}", markup=False)
     for note in c.notes:
-        _out.print(f"[dim]note: {note}[/dim]")
+        _out.print(f"[dim]note: {escape(note)}[/dim]")
 
 
 def compare_command(

@@ -204,6 +204,10 @@ def utc_now() -> str:
 # --------------------------------------------------------------------------
 
 
+#: Every status a recorded run can have.
+RUN_STATUSES: tuple[str, ...] = ("optimal", "time_limit", "infeasible", "no_solution", "error")
+
+
 @dataclass(frozen=True)
 class RunRecord:
     """One row of the run history.

@@ -1222,13 +1222,45 @@ def _grid_specs(
     return specs
 
 
-def _unique(problems: list[Problem]) -> list[Problem]:
+_PER_SCENARIO = re.compile(r"scenario (.+?): (.*)", re.S)
+
+
+def _unique(problems: list[Problem], total: int | None = None) -> list[Problem]:
+    """Problems without repeats, in order of first mention.
+
+    The same problem found in several scenarios at the same place (a key of
+    ``[defaults]`` every scenario inherits) is said once, naming the
+    scenarios, or "every scenario" when that is all ``total`` of them.
+    """
+    names: dict[tuple[str, int | None, str | None, str], list[str]] = {}
+    order: list[Problem | tuple[str, int | None, str | None, str]] = []
     seen: set[Problem] = set()
-    out = []
     for p in problems:
-        if p not in seen:
+        m = _PER_SCENARIO.fullmatch(p.message)
+        if m is not None:
+            key = (p.file, p.row, p.column, m.group(2))
+            if key not in names:
+                names[key] = []
+                order.append(key)
+            if m.group(1) not in names[key]:
+                names[key].append(m.group(1))
+        elif p not in seen:
             seen.add(p)
-            out.append(p)
+            order.append(p)
+    out = []
+    for item in order:
+        if isinstance(item, Problem):
+            out.append(item)
+            continue
+        file, row, column, message = item
+        found = names[item]
+        if len(found) == 1:
+            who = f"scenario {found[0]}"
+        elif total is not None and len(found) == total > 2:
+            who = "every scenario"
+        else:
+            who = "scenarios " + ", ".join(found)
+        out.append(Problem(file, row, column, f"{who}: {message}"))
     return out
 
 
@@ -1403,5 +1435,5 @@ def check_sweep(sweep: Sweep, *, skip: Collection[str] = ()) -> list[CheckedScen
             continue
         checked.append(CheckedScenario(spec, config, data))
     if problems:
-        raise InputError(_unique(problems))
+        raise InputError(_unique(problems, len(sweep.scenarios)))
     return checked

@@ -456,6 +456,17 @@ def plan_tasks(
 _TIMED_STATUSES = ("optimal", "time_limit", "no_solution", "infeasible")
 
 
+def _work_seconds(rec: Any) -> float | None:
+    """Model build plus solve time of a recorded run, seconds (else its wall time).
+
+    Not the wall time when the parts are known: the first scenario on a new
+    worker also pays for imports, and would look longest next time.
+    """
+    if rec.solve_seconds is not None:
+        return float(rec.solve_seconds) + float(rec.build_seconds or 0.0)
+    return None if rec.wall_seconds is None else float(rec.wall_seconds)
+
+
 def longest_first(
     tasks: Sequence[SweepTask], history: str | None, sweep_name: str
 ) -> list[SweepTask]:
@@ -464,11 +475,13 @@ def longest_first(
     A sweep on ``k`` workers ends when its last scenario ends; starting the
     long scenarios first keeps a short one from being the only thing left
     running while the other workers sit idle (longest-processing-time-first
-    scheduling). The expected time of a scenario is the wall time of its
-    latest finished run of the same sweep name in the run history. Scenarios
+    scheduling). The expected time of a scenario is the build plus solve
+    time of its latest finished run of the same sweep name in the run
+    history (its wall time when those are not recorded). Scenarios
     the history does not know come first, in the order given (they may be
-    long); the known ones follow, longest first. Without a history, or when
-    it cannot be read, the order given is kept.
+    long); the known ones follow, longest first (by model build plus solve
+    time). Without a history, or when it cannot be read, the order given is
+    kept.
 
     Parameters
     ----------
@@ -485,8 +498,9 @@ def longest_first(
     try:
         with History(history) as h:
             for rec in h.runs(sweep=sweep_name, status=_TIMED_STATUSES):
-                if rec.wall_seconds is not None:
-                    seconds[rec.scenario] = float(rec.wall_seconds)  # oldest first: latest wins
+                took = _work_seconds(rec)
+                if took is not None:
+                    seconds[rec.scenario] = took  # oldest first: latest wins
     except Exception:  # the order is only an optimisation: never fail the sweep for it
         return list(tasks)
     unknown = [t for t in tasks if t.name not in seconds]
@@ -524,15 +538,21 @@ def start_local_cluster(workers: int | None = None) -> tuple[Any, Any]:
     """
     distributed = _distributed()
     n = workers if workers is not None else (os.cpu_count() or 1)
-    cluster = distributed.LocalCluster(
-        n_workers=n,
-        threads_per_worker=1,
-        processes=True,
-        host="127.0.0.1",
-        dashboard_address=None,
-        silence_logs=logging.ERROR,
-        preload=list(WORKER_PRELOAD),
-    )
+    import dask
+
+    # Saturation 1.0: a worker is given its next scenario only when it is
+    # free (Dask's default, 1.1, queues a second one on each worker of one
+    # thread), so scenarios start in the order submitted.
+    with dask.config.set({"distributed.scheduler.worker-saturation": 1.0}):
+        cluster = distributed.LocalCluster(
+            n_workers=n,
+            threads_per_worker=1,
+            processes=True,
+            host="127.0.0.1",
+            dashboard_address=None,
+            silence_logs=logging.ERROR,
+            preload=list(WORKER_PRELOAD),
+        )
     try:
         client = distributed.Client(cluster)
     except BaseException:
@@ -707,6 +727,12 @@ def run_sweep(
             state.last = None
         notify()
 
+    def left(name: str) -> None:
+        # The worker is done with it; the result may reach us a moment later.
+        with lock:
+            state.running.pop(name, None)
+        notify()
+
     def finished(outcome: ScenarioOutcome) -> None:
         with lock:
             ended.add(outcome.name)
@@ -736,6 +762,8 @@ def run_sweep(
                 _, msg = event
                 if isinstance(msg, dict) and msg.get("state") == "started":
                     started(str(msg.get("scenario")), str(msg.get("worker", "")))
+                elif isinstance(msg, dict) and msg.get("state") == "finished":
+                    left(str(msg.get("scenario")))
 
             client.subscribe_topic(tasks[0].topic, on_event)
             stack.callback(_unsubscribe, client, tasks[0].topic)

@@ -207,6 +207,9 @@ def test_cli_solve_records_and_runs_lists(tmp_path: Path) -> None:
     )
     result = runner.invoke(app, ["runs", "--history", str(db), "--status", "infeasible"])
     assert result.exit_code == 0 and "0 runs" in result.output
+    # A misspelt status is refused, not answered with an empty list.
+    result = runner.invoke(app, ["runs", "--history", str(db), "--status", "optimall"])
+    assert result.exit_code == 2 and "'optimall' is not a run status" in result.output
     result = runner.invoke(app, ["runs", "--history", str(db), "--scenario", "iberia-*"])
     assert "iberia-demo" in result.output and "optimal" in result.output
     # Off: nothing recorded, nothing created.

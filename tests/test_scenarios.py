@@ -913,3 +913,29 @@ def test_freight_what_ifs_solved(tmp_path: Path) -> None:
     # plus 100 EUR/t x the CO2e in tonnes.
     rise = dearer["costs"]["total"] - base["costs"]["total"]
     assert rise == pytest.approx(0.5 * 1.0 * km + 100 * base["co2e_wtw_kg"] / 1000, rel=1e-6)
+
+
+def test_a_defaults_problem_is_said_once_for_the_scenarios_it_reaches(tmp_path: Path) -> None:
+    path = write_sweep(
+        tmp_path,
+        """
+        [defaults]
+        "solver.nmae" = "cbc"
+
+        [scenarios.a]
+        [scenarios.b]
+        [scenarios.c]
+        """,
+    )
+    with pytest.raises(InputError) as info:
+        load_sweep(path, check=True)
+    found = [p for p in info.value.problems if "nmae" in p.message]
+    assert len(found) == 1
+    assert found[0].column == "defaults.solver.nmae" and found[0].row == 5
+    assert found[0].message.startswith("every scenario: unknown key 'nmae'")
+    # Two scenarios are named rather than summed up.
+    path.write_text(path.read_text(encoding="utf-8").replace("[scenarios.c]", ""), encoding="utf-8")
+    with pytest.raises(InputError) as info:
+        load_sweep(path, check=True)
+    found = [p for p in info.value.problems if "nmae" in p.message]
+    assert len(found) == 1 and found[0].message.startswith("scenarios a, b: unknown key")

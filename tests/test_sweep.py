@@ -375,11 +375,11 @@ def _task(name: str, tmp_path: Path) -> SweepTask:
     )
 
 
-def test_longest_first_orders_by_the_latest_recorded_wall_time(tmp_path: Path) -> None:
+def test_longest_first_orders_by_the_latest_recorded_time(tmp_path: Path) -> None:
     db = f"sqlite:///{tmp_path / 'h.sqlite'}"
     rows = [
         ("r1", "a", "s", "optimal", 5.0),
-        ("r2", "b", "s", "time_limit", 50.0),
+        ("r2", "b", "s", "time_limit", 50.0),  # of which build + solve 1.5 s (below)
         ("r3", "c", "s", "optimal", 20.0),
         ("r4", "a", "s", "optimal", 100.0),  # later than r1: this one counts
         ("r5", "c", "s", "error", 900.0),  # a failed run says nothing of the time
@@ -387,11 +387,14 @@ def test_longest_first_orders_by_the_latest_recorded_wall_time(tmp_path: Path) -
     ]
     with History(db) as h:
         for run_id, scenario, sweep, status, wall in rows:
-            h.record(RunRecord(run_id, scenario, status, sweep=sweep, wall_seconds=wall))
+            parts = {"build_seconds": 0.5, "solve_seconds": 1.0} if run_id == "r2" else {}
+            h.record(RunRecord(run_id, scenario, status, sweep=sweep, wall_seconds=wall, **parts))
     tasks = [_task(n, tmp_path) for n in "abcde"]
     # Unknown scenarios first in the order given (they may be long), then
-    # the known ones by their latest wall time, longest first.
-    assert [t.name for t in longest_first(tasks, db, "s")] == ["d", "e", "a", "b", "c"]
+    # the known ones by their latest build + solve time (else wall time),
+    # longest first: a 100 s, c 20 s, b 1.5 s (its 50 s wall time was mostly
+    # something else, such as a new worker's imports).
+    assert [t.name for t in longest_first(tasks, db, "s")] == ["d", "e", "a", "c", "b"]
     assert [t.name for t in longest_first(tasks, None, "s")] == list("abcde")
     assert [t.name for t in longest_first(tasks, db, "never-run")] == list("abcde")
     # An unreadable history only costs the optimisation, never the sweep.
@@ -413,8 +416,10 @@ def test_cluster_starts_the_longest_scenarios_first(tmp_path: Path) -> None:
                 RunRecord(f"old.{name}", name, "optimal", sweep="test-sweep", wall_seconds=wall)
             )
     starts: list[str] = []
+    most_running = [0]
 
     def seen(state: SweepState) -> None:
+        most_running[0] = max(most_running[0], len(state.running))
         for name in state.running:
             if name not in starts:
                 starts.append(name)
@@ -423,6 +428,7 @@ def test_cluster_starts_the_longest_scenarios_first(tmp_path: Path) -> None:
     # the scheduler hands them out.
     report = run_sweep(sweep, tmp_path / "out", workers=1, history=db, checked=True, on_update=seen)
     assert starts == ["c", "a", "b"]
+    assert most_running[0] == 1  # the live display never counts more than the one worker
     assert [o.name for o in report.outcomes] == ["a", "b", "c"]  # reported in the file's order
     assert report.exit_code == 0
     starts.clear()
@@ -436,3 +442,14 @@ def test_cluster_starts_the_longest_scenarios_first(tmp_path: Path) -> None:
         longest=False,
     )
     assert starts == ["a", "b", "c"]
+
+
+def test_error_messages_keep_their_square_brackets(tmp_path: Path) -> None:
+    # Messages name TOML tables such as [sweep]; printed as console markup,
+    # the brackets and their contents used to vanish.
+    path = tmp_path / "no-head.toml"
+    path.write_text("[scenarios.a]\n", encoding="utf-8")
+    result = runner.invoke(app, ["sweep", str(path), "--out", str(tmp_path / "out")])
+    assert result.exit_code == 2, result.output
+    assert "a [sweep] table with base" in result.output
+    assert not (tmp_path / "out").exists()

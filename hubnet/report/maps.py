@@ -591,8 +591,8 @@ def _legend(
             f"{esc(fmt_num(largest_volume, 0))} {esc(unit)} per day</div>"
         )
     parts.append(
-        f"<div>{_circle_key(9, HUB_COLOUR)}Hub, area by throughput<br>"
-        f"<span class='hn-k'></span>largest: {esc(fmt_num(largest_throughput, 0))} "
+        f"<div>{_circle_key(9, HUB_COLOUR)}Hub, area by throughput</div>"
+        f"<div class='hn-note'>Largest hub: {esc(fmt_num(largest_throughput, 0))} "
         f"{esc(unit)} per day</div>"
         f"<div>{_circle_key(TERMINAL_RADIUS_PX, TERMINAL_FILL)}Terminal</div>"
         "<div class='hn-note'>Each leg bends to the right of its direction of travel:<br>"
@@ -784,7 +784,8 @@ def build_map(run: RunData, *, tiles: str = DEFAULT_TILES, compact: bool = False
                 css += " hubnet-empty"
             path = _bend(where[a], where[b], planar)
             weight = EMPTY_WIDTH_PX if back else _width(volume, largest_volume)
-            if class_colours and tier == "trunk" and not back:
+            cased = bool(class_colours) and tier == "trunk" and not back
+            if cased:
                 casing = folium.PolyLine(
                     path,
                     color=TRUNK_CASING_COLOUR,
@@ -799,7 +800,7 @@ def build_map(run: RunData, *, tiles: str = DEFAULT_TILES, compact: bool = False
                 path,
                 color=colour,
                 weight=weight,
-                opacity=0.85,
+                opacity=1.0 if cased else 0.85,  # over a casing: keep the class colour true
                 dash_array=EMPTY_DASH if back else (DIRECT_DASH if tier == "direct" else None),
                 class_name=css,
             )
