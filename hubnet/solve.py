@@ -28,6 +28,14 @@ from hubnet.data import NetworkData
 from hubnet.errors import InfeasibleError, InputError, NoSolutionError, Problem, SolverError
 from hubnet.heuristics import allocate_to_hubs, starting_plan
 from hubnet.model import HubModel, build_model, check_plan_possible
+from hubnet.pathlp import MAX_COLUMNS as PATH_MAX_COLUMNS
+from hubnet.pathlp import (
+    PathRelaxation,
+    allocation_cost,
+    fixable,
+    relaxation_columns,
+    solve_path_relaxation,
+)
 from hubnet.solution import RunStatus, Solution, SolveStats, evaluate_plan
 
 Progress = Callable[[str], None]
@@ -315,8 +323,18 @@ def solve_network(
     NoSolutionError
         The time limit ran out before any plan was found.
     """
+    requested = opts.name
     opts = dataclasses.replace(opts, name=pick_solver(opts.name, params.allocation))
     check_plan_possible(data, params)
+    _check_start_hubs(data, start_hubs)
+    spent = 0.0
+    relaxed: PathRelaxation | None = None
+    if _path_relaxation_first(data, params, requested):
+        proven, spent, relaxed = _solve_by_path_relaxation(
+            data, d, params, opts, scenario, progress
+        )
+        if proven is not None:
+            return proven
     start = _start(data, d, params, start_hubs, progress)
     limit = f" (limit {opts.time_limit_s:g} s)" if opts.time_limit_s else ""
     if params.allocation == "multiple" and params.formulation in ("auto", "benders"):
@@ -336,9 +354,18 @@ def solve_network(
         )
         if start is not None:
             model.set_start(start[0], start[1])
+            if relaxed is not None and start[1] is not None:
+                _fix_by_reduced_cost(model, relaxed, data, d, params, start[1], progress)
         progress(f"solving with {opts.name}{limit}")
-        stats = run_solver(model, opts, progress)
-        stats = dataclasses.replace(stats, build_seconds=build_seconds)
+        left = opts
+        if spent and opts.time_limit_s is not None:  # the relaxation used part of the limit
+            left = dataclasses.replace(opts, time_limit_s=max(opts.time_limit_s - spent, 0.01))
+        stats = run_solver(model, left, progress)
+        stats = dataclasses.replace(
+            stats,
+            build_seconds=build_seconds,
+            options={**stats.options, "time_limit_s": opts.time_limit_s},
+        )
         hubs, assign = model.open_hubs(), model.allocation()
     if stats.status == "infeasible":
         raise InfeasibleError(
@@ -357,6 +384,112 @@ def solve_network(
     return evaluate_plan(data, d, params, hubs, assign, stats, scenario=scenario)
 
 
+def _path_relaxation_first(data: NetworkData, params: HubModelParams, requested: str) -> bool:
+    """Try the path relaxation first: single allocation, no sort capacity, small enough.
+
+    Not when CBC was asked for by name: that choice must reach CBC (the
+    second-solver cross-checks depend on it).
+    """
+    return (
+        requested in ("auto", "highs")
+        and params.allocation == "single"
+        and not params.capacitated
+        and relaxation_columns(data) <= PATH_MAX_COLUMNS
+    )
+
+
+def _fix_by_reduced_cost(
+    model: HubModel,
+    relaxed: PathRelaxation,
+    data: NetworkData,
+    d: np.ndarray,
+    params: HubModelParams,
+    assign: np.ndarray,
+    progress: Progress,
+) -> None:
+    """Leave out of the MILP the allocations the relaxation proves too dear.
+
+    Every allocation whose reduced cost in the path relaxation exceeds the
+    starting plan's distance from the relaxation's bound can be in no plan
+    cheaper than the start (which the solver has), so its variable is fixed
+    at 0.
+    """
+    incumbent = allocation_cost(data, d, params, assign)
+    out = fixable(relaxed, incumbent)
+    fixed = 0
+    for (i, k), var in model.assign.items():
+        if out[i, k]:  # i == k too: a hub that no cheaper plan opens
+            var.upBound = 0
+            fixed += 1
+    progress(
+        f"start {incumbent:,.2f} against the relaxation's bound {relaxed.objective:,.2f}: "
+        f"{fixed} of {len(model.assign)} allocations ruled out by reduced cost"
+    )
+
+
+def _solve_by_path_relaxation(
+    data: NetworkData,
+    d: np.ndarray,
+    params: HubModelParams,
+    opts: SolverParams,
+    scenario: str,
+    progress: Progress,
+) -> tuple[Solution | None, float, PathRelaxation | None]:
+    """The plan, proven optimal, when the path relaxation is integral; else ``None``.
+
+    Returns the plan (or ``None``), the seconds spent and the relaxation
+    (``None`` when it was not solved).
+    """
+    t0 = time.perf_counter()
+    progress(f"solving the path relaxation for {data.n} sites with HiGHS")
+    relaxed = solve_path_relaxation(data, d, params, time_limit_s=opts.time_limit_s)
+    spent = time.perf_counter() - t0
+    if relaxed is None:
+        progress("path relaxation not solved: solving the flow model")
+        return None, spent, None
+    if not relaxed.integral:
+        progress(
+            f"path relaxation bound {relaxed.objective:,.2f} is not a plan "
+            f"({relaxed.solve_seconds:.1f} s): solving the flow model"
+        )
+        return None, spent, relaxed
+    stats = SolveStats(
+        solver="highs",
+        status="optimal",
+        objective=relaxed.objective,
+        best_bound=relaxed.objective,
+        gap=0.0,
+        solve_seconds=relaxed.solve_seconds,
+        build_seconds=relaxed.build_seconds,
+        formulation="single-allocation path relaxation (integral, so optimal)",
+        options={"time_limit_s": opts.time_limit_s, "gap": opts.gap, "threads": opts.threads},
+        log=(
+            "HiGHS solved the linear relaxation of the single-allocation path formulation "
+            f"({relaxed.columns} columns) in {relaxed.solve_seconds:.3f} s: objective "
+            f"{relaxed.objective:.6f}; every allocation is 0 or 1, so this plan is optimal.\n"
+        ),
+    )
+    sol = evaluate_plan(data, d, params, relaxed.hubs, relaxed.assign, stats, scenario=scenario)
+    if abs(sol.costs["total"] - relaxed.objective) > 1e-6 * max(1.0, abs(relaxed.objective)):
+        # The re-priced plan must cost what the relaxation says; if not, trust neither.
+        progress("path relaxation and re-priced plan disagree: solving the flow model")
+        return None, spent, None
+    progress(
+        f"optimal: cost {relaxed.objective:,.2f} (path relaxation integral, "
+        f"{relaxed.solve_seconds:.1f} s)"
+    )
+    return sol, spent, relaxed
+
+
+def _check_start_hubs(data: NetworkData, start_hubs: Sequence[str] | None) -> None:
+    """Refuse a warm start naming sites the network does not have."""
+    unknown = [h for h in start_hubs or () if h not in data.ids]
+    if unknown:
+        raise InputError(
+            Problem("warm start", None, "hubs", f"unknown hub ids {', '.join(unknown)}")
+        )
+
+
 def _start(
     data: NetworkData,
     d: np.ndarray,
@@ -366,11 +499,7 @@ def _start(
 ) -> tuple[list[int], np.ndarray | None] | None:
     """A starting plan: the given hubs (e.g. last night's plan) or local search."""
     if start_hubs is not None:
-        unknown = [h for h in start_hubs if h not in data.ids]
-        if unknown:
-            raise InputError(
-                Problem("warm start", None, "hubs", f"unknown hub ids {', '.join(unknown)}")
-            )
+        _check_start_hubs(data, start_hubs)
         hubs = sorted(data.index(h) for h in start_hubs)
         assign = None
         if params.allocation == "single":

@@ -1,0 +1,128 @@
+"""The path relaxation that single allocation tries first (hubnet/pathlp.py).
+
+References outside hubnet's model code: tests/bruteforce.py enumerates every
+hub set and allocation; the AP optima are the published values in
+../shared/reference/hub_benchmarks/published_optima.csv (Ernst and
+Krishnamoorthy 1996).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from benchdata import ap_network, ap_params, euclid
+from bruteforce import brute_force
+
+from hubnet.config import HubModelParams, SolverParams
+from hubnet.data import Demand, NetworkData, Site
+from hubnet.pathlp import relaxation_columns, solve_path_relaxation
+from hubnet.solve import solve_network
+
+PATH = "single-allocation path relaxation (integral, so optimal)"
+
+
+def _network(seed: int, n: int = 7) -> tuple[NetworkData, np.ndarray, np.ndarray, np.ndarray]:
+    """Planar sites with flows in both directions, fixed and handling costs."""
+    rng = np.random.default_rng(seed)
+    xy = rng.uniform(0, 100, size=(n, 2))
+    w = rng.integers(0, 25, size=(n, n)).astype(float)
+    w[rng.uniform(size=(n, n)) < 0.2] = 0.0  # some pairs one way only or not at all
+    np.fill_diagonal(w, 0.0)
+    fixed = rng.uniform(100, 900, size=n).round(1)
+    handling = rng.uniform(0, 2, size=n).round(2)
+    sites = tuple(
+        Site(
+            id=f"S{i}",
+            name=f"site {i}",
+            x=float(xy[i, 0]),
+            y=float(xy[i, 1]),
+            hub_fixed_cost=float(fixed[i]),
+            handling_cost=float(handling[i]),
+        )
+        for i in range(n)
+    )
+    demand = tuple(
+        Demand(f"S{i}", f"S{j}", float(w[i, j])) for i in range(n) for j in range(n) if w[i, j] > 0
+    )
+    d = np.sqrt(((xy[:, None] - xy[None]) ** 2).sum(-1))
+    return NetworkData(sites, demand, coordinates="planar"), d, fixed, handling
+
+
+@pytest.mark.parametrize("p", [None, 2, 3])
+def test_relaxation_bounds_the_optimum_and_is_it_when_integral(p: int | None) -> None:
+    integral = 0
+    for seed in range(8):
+        data, d, fixed, handling = _network(seed)
+        params = HubModelParams(
+            allocation="single",
+            hubs=p,
+            collection_factor=1.0,
+            transfer_factor=0.6,
+            distribution_factor=1.3,
+            cost_per_unit_km=0.5,
+        )
+        w = data.flow_matrix()
+        # hubnet charges a hub's fixed cost with or without a hub count.
+        want, hubs = brute_force(
+            d,
+            w,
+            allocation="single",
+            p=p,
+            rate=0.5,
+            chi=1.0,
+            alpha=0.6,
+            delta=1.3,
+            fixed=fixed,
+            handling=handling,
+        )
+        r = solve_path_relaxation(data, d, params)
+        assert r is not None
+        assert r.columns == relaxation_columns(data)
+        assert r.objective <= want * (1 + 1e-9) + 1e-6, (seed, r.objective, want)
+        if r.integral:
+            integral += 1
+            assert r.objective == pytest.approx(want, rel=1e-7), (seed, hubs, r.hubs)
+            sol = solve_network(data, d, params, SolverParams())
+            assert sol.stats.formulation == PATH and sol.stats.status == "optimal"
+            assert sol.costs["total"] == pytest.approx(want, rel=1e-7)
+    # The relaxation is integral on most of these (it is what makes it pay).
+    assert integral >= 5
+
+
+def test_sort_capacity_and_multiple_allocation_skip_it() -> None:
+    data, d, _, _ = _network(1)
+    assert solve_path_relaxation(data, d, HubModelParams(allocation="multiple", hubs=2)) is None
+    assert (
+        solve_path_relaxation(data, d, HubModelParams(allocation="single", capacitated=True))
+        is None
+    )
+
+
+def test_cbc_by_name_solves_the_flow_model() -> None:
+    # Asking for CBC must reach CBC: the second-solver cross-checks rely on it.
+    data, d, _, _ = _network(2)
+    params = HubModelParams(allocation="single", hubs=2)
+    by_cbc = solve_network(data, d, params, SolverParams(name="cbc"))
+    by_default = solve_network(data, d, params, SolverParams())
+    assert by_cbc.stats.solver == "cbc" and by_cbc.stats.formulation != PATH
+    assert by_cbc.costs["total"] == pytest.approx(by_default.costs["total"], rel=1e-7)
+
+
+def test_published_optima_through_both_routes() -> None:
+    # Published: AP n=10 p=2 167493.06, hubs 3 7 (1-based); p=3 136008.13,
+    # hubs 3 4 7 (published_optima.csv, Ernst and Krishnamoorthy 1996). The
+    # relaxation is integral for p=2; for p=3 it is not (136007.41), so the
+    # flow model finishes the job.
+    data = ap_network(10)
+    d = euclid(data)
+    two = solve_network(data, d, ap_params("single", 2), SolverParams())
+    assert two.stats.formulation == PATH
+    assert abs(two.costs["total"] - 167493.06) <= 0.005
+    assert sorted(two.hub_ids, key=int) == ["3", "7"]
+    three = solve_network(data, d, ap_params("single", 3), SolverParams())
+    assert three.stats.formulation != PATH and three.stats.status == "optimal"
+    assert abs(three.costs["total"] - 136008.13) <= 0.005
+    assert sorted(three.hub_ids, key=int) == ["3", "4", "7"]
+    relaxed = solve_path_relaxation(data, d, ap_params("single", 3))
+    assert relaxed is not None and not relaxed.integral
+    assert relaxed.objective <= 136008.13
