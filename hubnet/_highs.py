@@ -4,6 +4,9 @@ from __future__ import annotations
 
 import os
 import sys
+from typing import Any
+
+import numpy as np
 
 _BANNER_SHOWN = False
 
@@ -25,3 +28,30 @@ def silence_highs_banner() -> None:
         os.dup2(saved, 1)
         os.close(saved)
     _BANNER_SHOWN = True
+
+
+def column_lp(
+    cost: np.ndarray,
+    col_bounds: tuple[np.ndarray, np.ndarray],
+    row_bounds: tuple[np.ndarray, np.ndarray],
+    matrix: tuple[np.ndarray, np.ndarray, np.ndarray],
+) -> Any:
+    """A ``highspy.HighsLp`` from column-wise (CSC) arrays.
+
+    ``matrix`` is ``(start, index, value)``: column j's entries are rows
+    ``index[start[j]:start[j + 1]]`` with coefficients ``value[...]``.
+    """
+    import highspy
+
+    start, index, value = matrix
+    lp = highspy.HighsLp()
+    lp.num_col_ = len(cost)
+    lp.num_row_ = len(row_bounds[0])
+    lp.col_cost_ = cost
+    lp.col_lower_, lp.col_upper_ = col_bounds
+    lp.row_lower_, lp.row_upper_ = row_bounds
+    lp.a_matrix_.format_ = highspy.MatrixFormat.kColwise
+    lp.a_matrix_.start_ = start
+    lp.a_matrix_.index_ = index
+    lp.a_matrix_.value_ = value
+    return lp

@@ -39,7 +39,7 @@ import highspy
 import numpy as np
 import pulp
 
-from hubnet._highs import silence_highs_banner
+from hubnet._highs import column_lp, silence_highs_banner
 from hubnet.config import HubModelParams, SolverParams
 from hubnet.data import NetworkData
 from hubnet.heuristics import polish_multiple
@@ -133,18 +133,7 @@ def _origin_cut(
     start = np.searchsorted(cols, np.arange(n_col + 1)).astype(np.int32)
     rhs = np.concatenate([[1.0], np.zeros(q), w[dests]])
 
-    lp = highspy.HighsLp()
-    lp.num_col_ = n_col
-    lp.num_row_ = len(rhs)
-    lp.col_cost_ = cost
-    lp.col_lower_ = np.zeros(n_col)
-    lp.col_upper_ = upper
-    lp.row_lower_ = rhs
-    lp.row_upper_ = rhs
-    lp.a_matrix_.format_ = highspy.MatrixFormat.kColwise
-    lp.a_matrix_.start_ = start
-    lp.a_matrix_.index_ = rows
-    lp.a_matrix_.value_ = vals
+    lp = column_lp(cost, (np.zeros(n_col), upper), (rhs, rhs), (start, rows, vals))
     h = highspy.Highs()
     h.setOptionValue("output_flag", False)
     h.setOptionValue("presolve", _SUB_PRESOLVE)

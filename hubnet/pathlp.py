@@ -35,7 +35,7 @@ from dataclasses import dataclass, field
 import highspy
 import numpy as np
 
-from hubnet._highs import silence_highs_banner
+from hubnet._highs import column_lp, silence_highs_banner
 from hubnet.config import HubModelParams
 from hubnet.data import NetworkData
 from hubnet.solution import unit_path_costs
@@ -209,18 +209,7 @@ def solve_path_relaxation(
         if data.sites[k].hub_status == "open":
             col_lo[xcol(np.array(k), np.array(a))] = 1.0
 
-    lp = highspy.HighsLp()
-    lp.num_col_ = n_col
-    lp.num_row_ = n_row
-    lp.col_cost_ = cost
-    lp.col_lower_ = col_lo
-    lp.col_upper_ = col_hi
-    lp.row_lower_ = row_lo
-    lp.row_upper_ = row_hi
-    lp.a_matrix_.format_ = highspy.MatrixFormat.kColwise
-    lp.a_matrix_.start_ = start
-    lp.a_matrix_.index_ = row
-    lp.a_matrix_.value_ = val
+    lp = column_lp(cost, (col_lo, col_hi), (row_lo, row_hi), (start, row, val))
     silence_highs_banner()
     h = highspy.Highs()
     h.setOptionValue("output_flag", False)
