@@ -31,7 +31,8 @@ class Problem:
         the line number when known. ``None`` when the problem is not tied
         to a row (a missing column, a missing file).
     column
-        The column (or config key) concerned, or ``None``.
+        The column (or, in a TOML file, the key) concerned, or ``None``;
+        shown as "column" or "key".
     message
         A plain sentence saying what is wrong and what was expected.
     """
@@ -43,11 +44,11 @@ class Problem:
 
     def __str__(self) -> str:
         where = self.file
+        toml = self.file.endswith(".toml")
         if self.row is not None:
-            word = "line" if self.file.endswith(".toml") else "row"
-            where += f" {word} {self.row}"
+            where += f" {'line' if toml else 'row'} {self.row}"
         if self.column is not None:
-            where += f", column {self.column}"
+            where += f", {'key' if toml else 'column'} {self.column}"
         return f"{where}: {self.message}"
 
 

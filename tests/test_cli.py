@@ -399,7 +399,7 @@ def _no_candidate_hub(f: Path) -> Expectation:
 
 def _more_hubs_than_candidates(f: Path) -> Expectation:
     # The number comes from --hubs, so no config line is named.
-    return [("scenario.toml, column model.hubs", "50 hubs asked (model.hubs) but only 10 sites")]
+    return [("scenario.toml, key model.hubs", "50 hubs asked (model.hubs) but only 10 sites")]
 
 
 def _unknown_config_key(f: Path) -> Expectation:
@@ -407,7 +407,7 @@ def _unknown_config_key(f: Path) -> Expectation:
     line = config_line(f, "transfer_facter")
     return [
         (
-            f"scenario.toml line {line}, column model.transfer_facter",
+            f"scenario.toml line {line}, key model.transfer_facter",
             "unknown key 'transfer_facter'",
         ),
         ("model.transfer_facter", "did you mean 'transfer_factor'?"),
@@ -423,7 +423,7 @@ def _bad_toml(f: Path) -> Expectation:
 def _missing_input_file(f: Path) -> Expectation:
     edit_config(f, 'demand = "demand.csv"', 'demand = "demands.csv"')
     line = config_line(f, "demand =")
-    return [(f"scenario.toml line {line}, column inputs.demand", "file not found")]
+    return [(f"scenario.toml line {line}, key inputs.demand", "file not found")]
 
 
 def _bad_boolean(f: Path) -> Expectation:
@@ -453,7 +453,7 @@ def _matrix_negative_distance(f: Path) -> Expectation:
 def _bad_volume_unit(f: Path) -> Expectation:
     edit_config(f, 'volume_unit = "pallets"', 'volume_unit = "crates"')
     line = config_line(f, "volume_unit")
-    return [(f"scenario.toml line {line}, column inputs.volume_unit", "got 'crates'")]
+    return [(f"scenario.toml line {line}, key inputs.volume_unit", "got 'crates'")]
 
 
 def _negative_fixed_cost(f: Path) -> Expectation:
@@ -484,19 +484,19 @@ def _forced_open_non_candidate(f: Path) -> Expectation:
 
 def _missing_scenario_name(f: Path) -> Expectation:
     edit_config(f, 'name = "iberia-demo"\n', "")
-    return [("scenario.toml, column scenario.name", "required key is missing")]
+    return [("scenario.toml, key scenario.name", "required key is missing")]
 
 
 def _hubs_not_a_number(f: Path) -> Expectation:
     edit_config(f, 'allocation = "single"', 'allocation = "single"\nhubs = "three"')
     line = config_line(f, "hubs =")
-    return [(f"scenario.toml line {line}, column model.hubs", "got 'three'")]
+    return [(f"scenario.toml line {line}, key model.hubs", "got 'three'")]
 
 
 def _circuity_below_one(f: Path) -> Expectation:
     edit_config(f, "circuity = 1.2", "circuity = 0.5")
     line = config_line(f, "circuity")
-    return [(f"scenario.toml line {line}, column distances.circuity", "got 0.5")]
+    return [(f"scenario.toml line {line}, key distances.circuity", "got 0.5")]
 
 
 def _empty_demand(f: Path) -> Expectation:
@@ -515,7 +515,7 @@ def _excel_sites_latitude(f: Path) -> Expectation:
 
 def _unknown_solver(f: Path) -> Expectation:
     line = config_line(f, "name =", section="[solver]")
-    return [(f"scenario.toml line {line}, column solver.name", "'gurobi'")]
+    return [(f"scenario.toml line {line}, key solver.name", "'gurobi'")]
 
 
 CASES = [

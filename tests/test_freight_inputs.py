@@ -251,29 +251,28 @@ value_of_time = -1
         return f"{name} line {line_of(text, start, after)}"
 
     expected = [
-        f"{at('kg_per_unit')}, column inputs.kg_per_unit: Input should be greater than 0, got 0",
-        f'{at("cutoff")}, column service.cutoff: expected a time of day as "HH:MM" from '
+        f"{at('kg_per_unit')}, key inputs.kg_per_unit: Input should be greater than 0, got 0",
+        f'{at("cutoff")}, key service.cutoff: expected a time of day as "HH:MM" from '
         "00:00 to 24:00, got '25:00'",
-        f'{at("deliver_by")}, column service.deliver_by: expected a time of day as "HH:MM" '
+        f'{at("deliver_by")}, key service.deliver_by: expected a time of day as "HH:MM" '
         'from 00:00 to 24:00, written as text such as "18:00", got 8',
-        f"{at('days')}, column service.days: Input should be greater than or equal to 1, got 0",
-        f"{at('sort_hour')}, column service.sort_hour: unknown key 'sort_hour'; "
+        f"{at('days')}, key service.days: Input should be greater than or equal to 1, got 0",
+        f"{at('sort_hour')}, key service.sort_hour: unknown key 'sort_hour'; "
         "did you mean 'sort_hours'?",
-        f"{at('long_legs')}, column hours.long_legs: Input should be 'relay', 'two_drivers' "
+        f"{at('long_legs')}, key hours.long_legs: Input should be 'relay', 'two_drivers' "
         "or 'forbid', got 'relays'",
-        f"{at('relay_minutes')}, column hours.relay_minutes: Input should be greater than "
+        f"{at('relay_minutes')}, key hours.relay_minutes: Input should be greater than "
         "or equal to 0, got -5",
-        f"{at('value_of_time')}, column freight.value_of_time: Input should be greater than "
+        f"{at('value_of_time')}, key freight.value_of_time: Input should be greater than "
         "or equal to 0, got -1",
-        f"{at('emissions_basis')}, column freight.emissions_basis: Input should be 'ttw' or "
+        f"{at('emissions_basis')}, key freight.emissions_basis: Input should be 'ttw' or "
         "'wtw', got 'wtt'",
-        f"{at('max_transit_h')}, column freight.max_transit_h: Input should be greater than 0, "
-        "got 0",
-        f"{at('[freigth]')}, column freigth: unknown key 'freigth'; did you mean 'freight'?",
-        f"{at('allocation')}, column model.allocation: the freight model plans single "
+        f"{at('max_transit_h')}, key freight.max_transit_h: Input should be greater than 0, got 0",
+        f"{at('[freigth]')}, key freigth: unknown key 'freigth'; did you mean 'freight'?",
+        f"{at('allocation')}, key model.allocation: the freight model plans single "
         "allocation (each terminal works with one hub); set allocation = 'single', or "
         "remove inputs.vehicles to plan multiple allocation with the classic model",
-        f"{at('rules')}, column hours.rules: rule file not found: {tmp_path / 'ue'}; "
+        f"{at('rules')}, key hours.rules: rule file not found: {tmp_path / 'ue'}; "
         "expected 'eu', 'us' or the path of a TOML file with the drivers' hours limits; "
         "did you mean 'eu'?",
     ]
@@ -287,7 +286,7 @@ def test_multiple_allocation_with_vehicles_alone(tmp_path: Path) -> None:
         load_config(path)
     line = line_of(text, "allocation")
     assert messages(excinfo) == [
-        f"{path} line {line}, column model.allocation: the freight model plans single "
+        f"{path} line {line}, key model.allocation: the freight model plans single "
         "allocation (each terminal works with one hub); set allocation = 'single', or "
         "remove inputs.vehicles to plan multiple allocation with the classic model"
     ]
@@ -307,10 +306,10 @@ def test_rule_file_problems_name_the_rule_file(tmp_path: Path) -> None:
     found = messages(excinfo)
     # The config's own problem and the rule file's, in one report.
     assert (
-        f"{path} line {line_of(text, 'relay_cost')}, column hours.relay_cost: Input should be "
+        f"{path} line {line_of(text, 'relay_cost')}, key hours.relay_cost: Input should be "
         "greater than or equal to 0, got -1"
     ) in found
-    assert any(m.startswith(f"{rules} line 2, column break_h:") for m in found), found
+    assert any(m.startswith(f"{rules} line 2, key break_h:") for m in found), found
     assert len(found) == 2
 
 
@@ -321,7 +320,7 @@ def test_rule_path_that_is_a_folder(tmp_path: Path) -> None:
     with pytest.raises(InputError) as excinfo:
         load_config(path)
     assert messages(excinfo) == [
-        f"{path} line {line_of(text, 'rules')}, column hours.rules: expected a rule file, "
+        f"{path} line {line_of(text, 'rules')}, key hours.rules: expected a rule file, "
         f"got a folder: {tmp_path / 'rules'}"
     ]
 
@@ -563,6 +562,6 @@ def test_vehicles_file_not_found_names_the_config_line(tmp_path: Path) -> None:
     with pytest.raises(InputError) as excinfo:
         load_network(load_config(path))
     assert messages(excinfo) == [
-        f"{path} line {line_of(CONFIG, 'vehicles')}, column inputs.vehicles: file not "
+        f"{path} line {line_of(CONFIG, 'vehicles')}, key inputs.vehicles: file not "
         f"found: {tmp_path / 'fleet.csv'}"
     ]

@@ -276,19 +276,18 @@ def test_every_problem_of_every_scenario_at_once(tmp_path: Path) -> None:
     lines = [str(p) for p in info.value.problems]
     f = str(path)
     assert lines == [
-        f"{f} line 5, column scenarios.a.demand_scale: Input should be greater than 0, got -1",
-        f"{f} line 9, column scenarios.b.demand_scal: unknown key 'demand_scal'; "
+        f"{f} line 5, key scenarios.a.demand_scale: Input should be greater than 0, got -1",
+        f"{f} line 9, key scenarios.b.demand_scal: unknown key 'demand_scal'; "
         "did you mean 'demand_scale'?",
-        f"{f} line 8, column scenarios.b.model.hubz: scenario b: unknown key 'hubz'; "
+        f"{f} line 8, key scenarios.b.model.hubz: scenario b: unknown key 'hubz'; "
         "did you mean 'hubs'?",
-        f"{f} line 12, column scenarios.c.model.hubs: scenario c: 40 hubs asked (model.hubs) "
+        f"{f} line 12, key scenarios.c.model.hubs: scenario c: 40 hubs asked (model.hubs) "
         "but only 10 sites can be a hub",
-        f"{f} line 16, column scenarios.d.close_hubs: scenario d: unknown site 'SEVV'; "
+        f"{f} line 16, key scenarios.d.close_hubs: scenario d: unknown site 'SEVV'; "
         "did you mean 'SEV'?",
-        f"{f} line 15, column scenarios.d.open_hubs: scenario d: site 'VIG' is not a candidate "
+        f"{f} line 15, key scenarios.d.open_hubs: scenario d: site 'VIG' is not a candidate "
         "hub (add it with add_candidates)",
-        f"{f} line 19, column grid.solver.gap: scenario gap-2.0: Input should be less than 1, "
-        "got 2.0",
+        f"{f} line 19, key grid.solver.gap: scenario gap-2.0: Input should be less than 1, got 2.0",
     ]
 
 
@@ -317,9 +316,9 @@ def test_sweep_table_and_format_checked(tmp_path: Path) -> None:
     with pytest.raises(InputError) as info:
         load_sweep(path)
     text = str(info.value)
-    assert "line 3, column sweep.format: format 9 is not known" in text
-    assert "line 4, column sweep.bse: unknown key 'bse'; did you mean 'base'?" in text
-    assert "line 2, column sweep.base: config file not found" in text
+    assert "line 3, key sweep.format: format 9 is not known" in text
+    assert "line 4, key sweep.bse: unknown key 'bse'; did you mean 'base'?" in text
+    assert "line 2, key sweep.base: config file not found" in text
     path.write_text("[sweep\n")
     with pytest.raises(InputError, match="line 1: not valid TOML"):
         load_sweep(path)
@@ -354,7 +353,7 @@ def test_cli_sweep_rejects_a_bad_sweep_before_solving(tmp_path: Path) -> None:
         app, ["sweep", str(path), "--out", str(out), "--history", str(tmp_path / "h.sqlite")]
     )
     assert result.exit_code == EXIT_BAD_INPUT, result.output
-    assert f"{path} line 5, column scenarios.bad.close_hubs: scenario bad: unknown site 'XXX'" in (
+    assert f"{path} line 5, key scenarios.bad.close_hubs: scenario bad: unknown site 'XXX'" in (
         result.output
     )
     assert not out.exists()
@@ -715,16 +714,16 @@ def test_freight_sweep_is_checked_before_solving(tmp_path: Path) -> None:
     f = str(path)
     # Lines: 1-2 [sweep], 3 blank, then the body above from line 4.
     assert [str(p) for p in info.value.problems] == [
-        f"{f} line 18, column scenarios.d.add_vehicle_classes: T60.speed_kmh: expected a speed "
+        f"{f} line 18, key scenarios.d.add_vehicle_classes: T60.speed_kmh: expected a speed "
         "in km/h above 0 and at most 150, got 170",
-        f"{f} line 8, column scenarios.a.service.cutof: scenario a: unknown key 'cutof'; "
+        f"{f} line 8, key scenarios.a.service.cutof: scenario a: unknown key 'cutof'; "
         "did you mean 'cutoff'?",
-        f"{f} line 11, column scenarios.b.hours.long_legs: scenario b: Input should be 'relay', "
+        f"{f} line 11, key scenarios.b.hours.long_legs: scenario b: Input should be 'relay', "
         "'two_drivers' or 'forbid', got 'relais'",
-        f"{f} line 12, column scenarios.b.freight.carbon_price_per_t: scenario b: Input should "
+        f"{f} line 12, key scenarios.b.freight.carbon_price_per_t: scenario b: Input should "
         "be greater than or equal to 0, got -80",
-        f"{f} line 16, column scenarios.c.max_hours: scenario c: unknown site 'XYZ'",
-        f"{f} line 15, column scenarios.c.remove_vehicle_classes: scenario c: no vehicle class "
+        f"{f} line 16, key scenarios.c.max_hours: scenario c: unknown site 'XYZ'",
+        f"{f} line 15, key scenarios.c.remove_vehicle_classes: scenario c: no vehicle class "
         "left may run on trunk legs (between two hubs): keep a class with 'trunk' in its tiers, "
         "or add one with add_vehicle_classes",
     ]
