@@ -247,6 +247,21 @@ def allocate_to_hubs(
     return _Pricer(data, d, params).allocate(sorted(hubs))
 
 
+def single_allocation_cost(
+    data: NetworkData, d: np.ndarray, params: HubModelParams, assign: np.ndarray
+) -> float:
+    """Cost of a single-allocation plan, currency per day.
+
+    ``assign[i]`` is the hub (matrix index) of site i; the open hubs are
+    those used. Collection, handling at each hub passed, transfer,
+    distribution, and the open hubs' fixed costs.
+    """
+    a = np.asarray(assign, dtype=np.int64)
+    h = np.unique(a)
+    pos = np.searchsorted(h, a)
+    return _Pricer(data, d, params).single_cost(h, pos)
+
+
 def polish_multiple(
     data: NetworkData,
     d: np.ndarray,

@@ -165,15 +165,40 @@ def build_model(data: NetworkData, d: np.ndarray, params: HubModelParams) -> Hub
     return _multiple_allocation(data, d, params, cand)
 
 
+def allocation_costs(
+    data: NetworkData, d: np.ndarray, params: HubModelParams, cand: list[int]
+) -> np.ndarray:
+    """Cost of allocating each site to each candidate hub, currency per day.
+
+    ``(n, len(cand))``: element ``[i, a]`` is site i's volume collected to
+    hub ``cand[a]`` and handled there, plus its volume in distributed from
+    that hub; on the hub's own row (``i == cand[a]``, the hub open) plus its
+    fixed cost. Transfers between hubs are priced separately per pair.
+    """
+    w = data.flow_matrix()
+    out_vol = w.sum(axis=1)
+    in_vol = w.sum(axis=0)
+    handling = np.array([s.handling_cost for s in data.sites], dtype=float)
+    fixed = np.array([s.hub_fixed_cost for s in data.sites], dtype=float)
+    c, _t, dist = unit_path_costs(d, params)
+    idx = np.asarray(cand, dtype=np.int64)
+    cost = (
+        c[:, idx] * out_vol[:, None]
+        + dist[idx, :].T * in_vol[:, None]
+        + handling[idx][None, :] * out_vol[:, None]
+    )
+    cost[idx, np.arange(len(idx))] += fixed[idx]
+    return np.asarray(cost, dtype=float)
+
+
 def _single_allocation(
     data: NetworkData, d: np.ndarray, params: HubModelParams, cand: list[int]
 ) -> HubModel:
     n = data.n
     w = data.flow_matrix()
     out_vol = w.sum(axis=1)
-    in_vol = w.sum(axis=0)
     handling = np.array([s.handling_cost for s in data.sites])
-    c, t, dist = unit_path_costs(d, params)
+    _c, t, _dist = unit_path_costs(d, params)
     prob = pulp.LpProblem("single_allocation", pulp.LpMinimize)
     cset = set(cand)
 
@@ -192,11 +217,10 @@ def _single_allocation(
                     y[i, k, m] = _var(prob, f"y_{i}_{k}_{m}", 0)
 
     obj: list[tuple[pulp.LpVariable, float]] = []
+    alloc = allocation_costs(data, d, params, cand)
+    col = {k: a for a, k in enumerate(cand)}
     for (i, k), v in x.items():
-        coef = c[i, k] * out_vol[i] + dist[k, i] * in_vol[i] + handling[k] * out_vol[i]
-        if i == k:
-            coef += data.sites[k].hub_fixed_cost
-        obj.append((v, float(coef)))
+        obj.append((v, float(alloc[i, col[k]])))
     for (_i, k, m), v in y.items():
         obj.append((v, float(t[k, m] + handling[m])))
     prob += _expr(obj)

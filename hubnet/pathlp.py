@@ -38,6 +38,7 @@ import numpy as np
 from hubnet._highs import column_lp, silence_highs_banner
 from hubnet.config import HubModelParams
 from hubnet.data import NetworkData
+from hubnet.model import allocation_costs
 from hubnet.solution import unit_path_costs
 
 #: Largest relaxation built (columns): about n = 30 with every site a
@@ -132,10 +133,8 @@ def solve_path_relaxation(
     if q == 0:
         return None
     w = data.flow_matrix().astype(float)
-    out_vol, in_vol = w.sum(axis=1), w.sum(axis=0)
     handling = np.array([s.handling_cost for s in data.sites], dtype=float)
-    fixed = np.array([s.hub_fixed_cost for s in data.sites], dtype=float)
-    collect, transfer, distribute = unit_path_costs(d, params)
+    _collect, transfer, _distribute = unit_path_costs(d, params)
     iu, ju = np.nonzero(np.triu(w + w.T, k=1) > 0)
     n_pairs = len(iu)
     n_x = n * q
@@ -143,12 +142,7 @@ def solve_path_relaxation(
     n_col = n_x + n_u
 
     # Costs.
-    cx = (
-        collect[:, cand] * out_vol[:, None]
-        + distribute[cand, :].T * in_vol[:, None]
-        + handling[cand][None, :] * out_vol[:, None]
-    )
-    cx[cand, np.arange(q)] += fixed[cand]
+    cx = allocation_costs(data, d, params, [int(k) for k in cand])
     hop = transfer[np.ix_(cand, cand)] + handling[cand][None, :]
     np.fill_diagonal(hop, 0.0)
     cu = w[iu, ju][:, None, None] * hop[None, :, :] + w[ju, iu][:, None, None] * hop.T[None, :, :]
@@ -247,30 +241,6 @@ def solve_path_relaxation(
     )
 
 
-def allocation_cost(
-    data: NetworkData, d: np.ndarray, params: HubModelParams, assign: np.ndarray
-) -> float:
-    """Cost of a single-allocation plan as the relaxation prices it, currency per day.
-
-    ``assign[i]`` is the hub (matrix index) of site i; hubs are the sites
-    allocated to themselves. Paths use at most two hubs: collection,
-    handling at the first hub, transfer and handling at the second when the
-    two differ, distribution; plus the open hubs' fixed costs.
-    """
-    w = data.flow_matrix().astype(float)
-    handling = np.array([s.handling_cost for s in data.sites], dtype=float)
-    fixed = np.array([s.hub_fixed_cost for s in data.sites], dtype=float)
-    collect, transfer, distribute = unit_path_costs(d, params)
-    a = np.asarray(assign, dtype=np.int64)
-    n = len(a)
-    idx = np.arange(n)
-    hop = transfer[np.ix_(a, a)] + handling[a][None, :]
-    hop[a[:, None] == a[None, :]] = 0.0
-    per_unit = collect[idx, a][:, None] + handling[a][:, None] + hop + distribute[a, idx][None, :]
-    hubs = np.unique(a)
-    return float((w * per_unit).sum() + fixed[hubs].sum())
-
-
 def fixable(relaxed: PathRelaxation, incumbent: float, *, tol: float = 1e-7) -> np.ndarray:
     """Allocations no plan cheaper than ``incumbent`` can use: ``(n, n)`` booleans.
 
@@ -286,7 +256,6 @@ def fixable(relaxed: PathRelaxation, incumbent: float, *, tol: float = 1e-7) -> 
 __all__ = [
     "MAX_COLUMNS",
     "PathRelaxation",
-    "allocation_cost",
     "fixable",
     "relaxation_columns",
     "solve_path_relaxation",

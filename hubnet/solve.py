@@ -26,12 +26,11 @@ from hubnet.benders import solve_multiple_benders
 from hubnet.config import HubModelParams, SolverName, SolverParams
 from hubnet.data import NetworkData
 from hubnet.errors import InfeasibleError, InputError, NoSolutionError, Problem, SolverError
-from hubnet.heuristics import allocate_to_hubs, starting_plan
+from hubnet.heuristics import allocate_to_hubs, single_allocation_cost, starting_plan
 from hubnet.model import HubModel, build_model, check_plan_possible
 from hubnet.pathlp import MAX_COLUMNS as PATH_MAX_COLUMNS
 from hubnet.pathlp import (
     PathRelaxation,
-    allocation_cost,
     fixable,
     relaxation_columns,
     solve_path_relaxation,
@@ -355,7 +354,7 @@ def solve_network(
         if start is not None:
             model.set_start(start[0], start[1])
             if relaxed is not None and start[1] is not None:
-                _fix_by_reduced_cost(model, relaxed, data, d, params, start[1], progress)
+                _fix_by_reduced_cost(model, relaxed, start[2], progress)
         progress(f"solving with {opts.name}{limit}")
         left = opts
         if spent and opts.time_limit_s is not None:  # the relaxation used part of the limit
@@ -399,22 +398,17 @@ def _path_relaxation_first(data: NetworkData, params: HubModelParams, requested:
 
 
 def _fix_by_reduced_cost(
-    model: HubModel,
-    relaxed: PathRelaxation,
-    data: NetworkData,
-    d: np.ndarray,
-    params: HubModelParams,
-    assign: np.ndarray,
-    progress: Progress,
+    model: HubModel, relaxed: PathRelaxation, incumbent: float, progress: Progress
 ) -> None:
     """Leave out of the MILP the allocations the relaxation proves too dear.
 
     Every allocation whose reduced cost in the path relaxation exceeds the
-    starting plan's distance from the relaxation's bound can be in no plan
-    cheaper than the start (which the solver has), so its variable is fixed
-    at 0.
+    starting plan's distance (``incumbent``, its cost per day) from the
+    relaxation's bound can be in no plan cheaper than the start (which the
+    solver has), so its variable is fixed at 0.
     """
-    incumbent = allocation_cost(data, d, params, assign)
+    if not np.isfinite(incumbent):
+        return
     out = fixable(relaxed, incumbent)
     fixed = 0
     for (i, k), var in model.assign.items():
@@ -496,16 +490,24 @@ def _start(
     params: HubModelParams,
     start_hubs: Sequence[str] | None,
     progress: Progress,
-) -> tuple[list[int], np.ndarray | None] | None:
-    """A starting plan: the given hubs (e.g. last night's plan) or local search."""
+) -> tuple[list[int], np.ndarray | None, float] | None:
+    """A starting plan: the given hubs (e.g. last night's plan) or local search.
+
+    Returns the hubs, the single allocation (``None`` for multiple
+    allocation) and the plan's cost, currency per day (``nan`` where not
+    priced: given hubs under multiple allocation, or no allocation found).
+    """
     if start_hubs is not None:
         _check_start_hubs(data, start_hubs)
         hubs = sorted(data.index(h) for h in start_hubs)
         assign = None
+        cost = float("nan")
         if params.allocation == "single":
             assign = allocate_to_hubs(data, d, params, hubs)
+            if assign is not None:
+                cost = single_allocation_cost(data, d, params, assign)
         progress(f"starting plan given: {len(hubs)} hubs")
-        return hubs, assign
+        return hubs, assign, cost
     t0 = time.perf_counter()
     budget = 5.0 if params.allocation == "multiple" else 60.0
     found = starting_plan(data, d, params, max_seconds=budget)
@@ -516,4 +518,4 @@ def _start(
         f"starting plan from local search: {len(hubs)} hubs, cost {cost:,.2f} "
         f"({time.perf_counter() - t0:.1f} s)"
     )
-    return hubs, assign
+    return hubs, assign, cost

@@ -15,7 +15,8 @@ from bruteforce import brute_force
 
 from hubnet.config import HubModelParams, SolverParams
 from hubnet.data import Demand, NetworkData, Site
-from hubnet.pathlp import relaxation_columns, solve_path_relaxation
+from hubnet.heuristics import single_allocation_cost
+from hubnet.pathlp import fixable, relaxation_columns, solve_path_relaxation
 from hubnet.solve import solve_network
 
 PATH = "single-allocation path relaxation (integral, so optimal)"
@@ -87,6 +88,34 @@ def test_relaxation_bounds_the_optimum_and_is_it_when_integral(p: int | None) ->
             assert sol.costs["total"] == pytest.approx(want, rel=1e-7)
     # The relaxation is integral on most of these (it is what makes it pay).
     assert integral >= 5
+
+
+def test_start_pricing_and_fixing_agree_with_brute_force() -> None:
+    # The cost the solver gives its starting plan (heuristics.
+    # single_allocation_cost, used for reduced-cost fixing) must be the
+    # plan's real cost: checked against tests/bruteforce.py, which
+    # enumerates every allocation. And fixing by reduced cost against the
+    # optimum never rules out the optimal plan's own allocations.
+    for seed in range(4):
+        data, d, fixed, handling = _network(seed)
+        params = HubModelParams(allocation="single", hubs=3, transfer_factor=0.7)
+        want, _ = brute_force(
+            d,
+            data.flow_matrix(),
+            allocation="single",
+            p=3,
+            alpha=0.7,
+            fixed=fixed,
+            handling=handling,
+        )
+        sol = solve_network(data, d, params, SolverParams(name="cbc"))
+        hub_of = {t: h.id for h in sol.hubs for t in h.terminals}
+        assign = np.array([data.index(hub_of[s.id]) for s in data.sites])
+        assert single_allocation_cost(data, d, params, assign) == pytest.approx(want, rel=1e-9)
+        relaxed = solve_path_relaxation(data, d, params)
+        assert relaxed is not None
+        out = fixable(relaxed, want)
+        assert not out[np.arange(data.n), assign].any()
 
 
 def test_sort_capacity_and_multiple_allocation_skip_it() -> None:
