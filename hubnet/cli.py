@@ -59,7 +59,7 @@ def solve(
         "runs/latest"
     ),
     force: Annotated[
-        bool, typer.Option("--force", help="Replace the run folder if it exists.")
+        bool, typer.Option("--force", help="Replace the run folder if it exists.", metavar="")
     ] = False,
     hubs: Annotated[
         int | None, typer.Option("--hubs", help="Override model.hubs (number of hubs).")
@@ -80,9 +80,12 @@ def solve(
     log_format: LogFormatOption = "plain",
     warm_start: WarmStartOption = None,
     history: HistoryOption = None,
-    quiet: Annotated[bool, typer.Option("--quiet", "-q", help="Print only errors.")] = False,
+    quiet: Annotated[
+        bool, typer.Option("--quiet", "-q", help="Print only errors.", metavar="")
+    ] = False,
     verbose: Annotated[
-        bool, typer.Option("--verbose", "-v", help="Show tracebacks and the solver log.")
+        bool,
+        typer.Option("--verbose", "-v", help="Show tracebacks and the solver log.", metavar=""),
     ] = False,
 ) -> None:
     """Solve a scenario and write its run folder (summary.json and tables).
@@ -135,7 +138,7 @@ def solve(
 @app.command()
 def check(
     config: Annotated[Path, typer.Argument(help="Scenario config (TOML).")],
-    verbose: Annotated[bool, typer.Option("--verbose", "-v")] = False,
+    verbose: Annotated[bool, typer.Option("--verbose", "-v", metavar="")] = False,
 ) -> None:
     """Validate a scenario's config and input files without solving."""
     from hubnet.api import load_scenario

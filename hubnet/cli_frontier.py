@@ -105,7 +105,7 @@ def frontier_command(
         ),
     ] = DEFAULT_POINTS,
     force: Annotated[
-        bool, typer.Option("--force", help="Replace the frontier folder if it exists.")
+        bool, typer.Option("--force", help="Replace the frontier folder if it exists.", metavar="")
     ] = False,
     time_limit: Annotated[
         float | None,
@@ -114,10 +114,11 @@ def frontier_command(
         ),
     ] = None,
     quiet: Annotated[
-        bool, typer.Option("--quiet", "-q", help="Print only errors and the table.")
+        bool, typer.Option("--quiet", "-q", help="Print only errors and the table.", metavar="")
     ] = False,
     verbose: Annotated[
-        bool, typer.Option("--verbose", "-v", help="Show tracebacks and the solver log.")
+        bool,
+        typer.Option("--verbose", "-v", help="Show tracebacks and the solver log.", metavar=""),
     ] = False,
 ) -> None:
     """Trace the cost–time frontier: the cheapest plan, the fastest, and plans between.

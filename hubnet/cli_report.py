@@ -54,9 +54,11 @@ def map_command(
         ),
     ] = None,
     force: Annotated[
-        bool, typer.Option("--force", help="Replace the --out file if it exists.")
+        bool, typer.Option("--force", help="Replace the --out file if it exists.", metavar="")
     ] = False,
-    verbose: Annotated[bool, typer.Option("--verbose", "-v", help="Show tracebacks.")] = False,
+    verbose: Annotated[
+        bool, typer.Option("--verbose", "-v", help="Show tracebacks.", metavar="")
+    ] = False,
 ) -> None:
     """Draw a run folder's route map as one HTML file that opens without a network."""
     from hubnet.report.maps import write_map
@@ -83,9 +85,11 @@ def report_command(
     ),
     tiles: Annotated[str, typer.Option("--tiles", help=_TILES_HELP)] = "light",
     force: Annotated[
-        bool, typer.Option("--force", help="Replace the --out file if it exists.")
+        bool, typer.Option("--force", help="Replace the --out file if it exists.", metavar="")
     ] = False,
-    verbose: Annotated[bool, typer.Option("--verbose", "-v", help="Show tracebacks.")] = False,
+    verbose: Annotated[
+        bool, typer.Option("--verbose", "-v", help="Show tracebacks.", metavar="")
+    ] = False,
 ) -> None:
     """Write one HTML page comparing run folders side by side, with maps and cautions."""
     from hubnet.frontier import report_run_dirs

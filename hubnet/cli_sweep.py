@@ -204,36 +204,74 @@ def _money(x: float | None) -> str:
     return "" if x is None else f"{x:,.2f}"
 
 
-def _report_table(report: SweepReport) -> Table:
-    table = Table(
-        title=f"sweep {report.sweep}: {len(report.outcomes)} scenarios", title_justify="left"
-    )
-    for name, justify in (
-        ("scenario", "left"),
-        ("status", "left"),
-        ("hubs", "right"),
-        ("open hubs", "left"),
-        ("cost per day", "right"),
-        ("vs first", "right"),
-        ("vs first %", "right"),
-        ("gap %", "right"),
-        ("solve s", "right"),
-    ):
-        table.add_column(name, justify=justify)  # type: ignore[arg-type]
+#: Columns of the sweep table: name, alignment, and the order in which they
+#: give way on a narrow terminal (0: always shown; higher goes first).
+_REPORT_COLUMNS: tuple[tuple[str, str, int], ...] = (
+    ("scenario", "left", 0),
+    ("status", "left", 0),
+    ("hubs", "right", 2),
+    ("open hubs", "left", 0),
+    ("cost per day", "right", 0),
+    ("vs first", "right", 4),
+    ("vs first %", "right", 0),
+    ("gap %", "right", 1),
+    ("solve s", "right", 3),
+)
+
+
+def _report_table(report: SweepReport, width: int = 200) -> Table:
+    """The sweep's comparison table, fitted to ``width`` characters.
+
+    Figures are never cut short: on a narrow terminal the less needed
+    columns are left out (a caption says which, and that sweep.csv has them
+    all), and scenario names and hub lists wrap within their cells.
+    """
+    rows = []
     for row in report.rows():
         gap = row["gap"]
         pct = row["cost_change_pct"]
-        table.add_row(
-            escape(row["scenario"]),
-            row["status"] + (f" x{row['attempts']}" if row["attempts"] > 1 else ""),
-            "" if row["hub_count"] is None else str(row["hub_count"]),
-            escape(row["hubs"].replace(";", " ")),
-            _money(row["cost_per_day"]),
-            "" if row["cost_change"] is None else f"{row['cost_change']:+,.2f}",
-            "" if pct is None else f"{pct:+.2f}",
-            "" if gap is None else f"{100 * gap:.4f}",
-            "" if row["solve_seconds"] is None else f"{row['solve_seconds']:.1f}",
+        rows.append(
+            (
+                row["scenario"],
+                row["status"] + (f" x{row['attempts']}" if row["attempts"] > 1 else ""),
+                "" if row["hub_count"] is None else str(row["hub_count"]),
+                row["hubs"].replace(";", " "),
+                _money(row["cost_per_day"]),
+                "" if row["cost_change"] is None else f"{row['cost_change']:+,.2f}",
+                "" if pct is None else f"{pct:+.2f}",
+                "" if gap is None else f"{100 * gap:.4f}",
+                "" if row["solve_seconds"] is None else f"{row['solve_seconds']:.1f}",
+            )
         )
+    wrapping = {"scenario": 12, "open hubs": 12}  # narrowest these may wrap to
+    need = []
+    for c, (name, _justify, _rank) in enumerate(_REPORT_COLUMNS):
+        widest = max([len(name)] + [len(r[c]) for r in rows])
+        need.append(min(widest, wrapping.get(name, widest)) + 3)  # padding and border
+    shown = list(range(len(_REPORT_COLUMNS)))
+    for rank in (4, 3, 2, 1):
+        if sum(need[c] for c in shown) + 1 <= width:
+            break
+        shown = [c for c in shown if _REPORT_COLUMNS[c][2] != rank]
+    left_out = [_REPORT_COLUMNS[c][0] for c in range(len(_REPORT_COLUMNS)) if c not in shown]
+    table = Table(
+        title=f"sweep {report.sweep}: {len(report.outcomes)} scenarios",
+        title_justify="left",
+        caption=(
+            f"left out for the terminal's width: {', '.join(left_out)} (all in sweep.csv)"
+            if left_out
+            else None
+        ),
+        caption_justify="left",
+    )
+    for c in shown:
+        name, justify, _rank = _REPORT_COLUMNS[c]
+        if name in wrapping:
+            table.add_column(name, justify=justify, overflow="fold")  # type: ignore[arg-type]
+        else:
+            table.add_column(name, justify=justify, no_wrap=True, min_width=need[c] - 3)  # type: ignore[arg-type]
+    for r in rows:
+        table.add_row(*(escape(r[c]) for c in shown))
     return table
 
 
@@ -264,10 +302,14 @@ def sweep_command(
         ),
     ] = None,
     history: HistoryOption = None,
-    force: Annotated[bool, typer.Option("--force", help="Replace run folders that exist.")] = False,
+    force: Annotated[
+        bool, typer.Option("--force", help="Replace run folders that exist.", metavar="")
+    ] = False,
     resume: Annotated[
         bool,
-        typer.Option("--resume", help="Keep complete run folders; solve only the others."),
+        typer.Option(
+            "--resume", help="Keep complete run folders; solve only the others.", metavar=""
+        ),
     ] = False,
     in_order: Annotated[
         bool,
@@ -275,12 +317,15 @@ def sweep_command(
             "--in-order",
             help="Start the scenarios in the sweep file's order; by default the ones the "
             "run history says took longest start first, which shortens the sweep.",
+            metavar="",
         ),
     ] = False,
     quiet: Annotated[
-        bool, typer.Option("--quiet", "-q", help="Print only errors and the table.")
+        bool, typer.Option("--quiet", "-q", help="Print only errors and the table.", metavar="")
     ] = False,
-    verbose: Annotated[bool, typer.Option("--verbose", "-v", help="Show tracebacks.")] = False,
+    verbose: Annotated[
+        bool, typer.Option("--verbose", "-v", help="Show tracebacks.", metavar="")
+    ] = False,
 ) -> None:
     """Solve every scenario of a sweep file in parallel and compare them.
 
@@ -346,7 +391,7 @@ def sweep_command(
     finally:
         if starting is not None:
             starting.close()
-    _out.print(_report_table(report))
+    _out.print(_report_table(report, _out.width))
     if not quiet:
         failed = len(report.failed)
         _err.print(
@@ -379,9 +424,11 @@ def runs_command(
     last: Annotated[int, typer.Option("--last", "-n", min=1, help="Show the N latest runs.")] = 20,
     history: HistoryOption = None,
     as_json: Annotated[
-        bool, typer.Option("--json", help="Print JSON lines instead of a table.")
+        bool, typer.Option("--json", help="Print JSON lines instead of a table.", metavar="")
     ] = False,
-    verbose: Annotated[bool, typer.Option("--verbose", "-v", help="Show tracebacks.")] = False,
+    verbose: Annotated[
+        bool, typer.Option("--verbose", "-v", help="Show tracebacks.", metavar="")
+    ] = False,
 ) -> None:
     """List recorded runs, latest last: status, cost, hubs, gap, time and run folder."""
     from dataclasses import asdict
@@ -512,11 +559,15 @@ def compare_command(
     run_a: Annotated[str, typer.Argument(help="Run A: a run folder, a history id or a run id.")],
     run_b: Annotated[str, typer.Argument(help="Run B, compared with A.")],
     history: HistoryOption = None,
-    as_json: Annotated[bool, typer.Option("--json", help="Print JSON instead of tables.")] = False,
+    as_json: Annotated[
+        bool, typer.Option("--json", help="Print JSON instead of tables.", metavar="")
+    ] = False,
     max_legs: Annotated[
         int, typer.Option("--max-legs", min=0, help="Legs listed per change (added, removed).")
     ] = 20,
-    verbose: Annotated[bool, typer.Option("--verbose", "-v", help="Show tracebacks.")] = False,
+    verbose: Annotated[
+        bool, typer.Option("--verbose", "-v", help="Show tracebacks.", metavar="")
+    ] = False,
 ) -> None:
     """Say what changed between two runs: figures, hubs, terminals, legs and inputs."""
     from hubnet.compare import compare_runs, find_run

@@ -94,7 +94,7 @@ def preflight(
         if not force:
             raise OutputExistsError(
                 f"{kind} {str(out_dir)!r} already exists: choose another folder, "
-                "or ask for it to be replaced (force)"
+                "or replace it (--force on the command line, force=True from Python)"
             )
         if out_dir.is_symlink() or not out_dir.is_dir():
             raise OutputExistsError(

@@ -447,7 +447,8 @@ def plan_tasks(
         shown = ", ".join(existing[:10]) + (" ..." if len(existing) > 10 else "")
         raise OutputExistsError(
             f"{len(existing)} run folder(s) already exist in {str(out)!r} ({shown}): "
-            "choose another folder, finish an interrupted sweep (resume), or replace them (force)"
+            "choose another folder, finish an interrupted sweep (--resume; resume=True from "
+            "Python), or replace them (--force; force=True from Python)"
         )
     return sweep_id, tasks
 

@@ -132,6 +132,7 @@ def test_second_solve_without_force_exits_5_and_changes_nothing(
     result = invoke("solve", DEMO_CONFIG, "--out", out)
     assert result.exit_code == EXIT_OUTPUT_EXISTS, result.output
     assert "already exists" in result.stderr
+    assert "--force" in result.stderr  # the switch to use, by its name
     assert snapshot(out) == before
     assert sorted(out.parent.iterdir()) == siblings
 
@@ -673,3 +674,13 @@ def test_tiny_time_limit_is_reported_honestly(tmp_path: Path) -> None:
         assert summary["gap"] is not None and summary["gap"] <= 1e-6
     if summary["best_bound"] is not None:
         assert summary["best_bound"] <= summary["objective"] * (1 + 1e-9)
+
+
+@pytest.mark.parametrize("command", ["solve", "sweep", "frontier", "report", "map"])
+def test_help_shows_no_type_beside_on_off_switches(command: str) -> None:
+    # A switch such as --force takes no value: its help line must not show
+    # a value type (new-user trial: "--force <bool>" read as "--force true").
+    result = CliRunner().invoke(app, [command, "--help"], env={"COLUMNS": "100"})
+    assert result.exit_code == 0, result.output
+    switches = [ln for ln in result.output.splitlines() if "--force" in ln or "--verbose" in ln]
+    assert switches and not any("<bool>" in ln for ln in switches), switches

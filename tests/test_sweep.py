@@ -21,9 +21,11 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 import pytest
+from rich.console import Console
 from typer.testing import CliRunner
 
 from hubnet.cli import app
+from hubnet.cli_sweep import _report_table
 from hubnet.errors import EXIT_OUTPUT_EXISTS, OutputExistsError
 from hubnet.history import History, RunRecord
 from hubnet.jobs import run_job
@@ -275,6 +277,7 @@ close_hubs = ["SEV"]
     result = runner.invoke(app, [*args, "--history", str(db)])
     assert result.exit_code == EXIT_OUTPUT_EXISTS
     assert "2 run folder(s) already exist" in result.output
+    assert "--resume" in result.output and "--force" in result.output
 
 
 # --------------------------------------------------------------------------
@@ -340,6 +343,19 @@ def test_serial_sweep_resume_and_force(tmp_path: Path) -> None:
     lines = (out / "sweep.csv").read_text().splitlines()
     assert lines[0].startswith("scenario,status,hub_count,hubs,cost_per_day,cost_change")
     assert lines[1].startswith("a,optimal,") and ",0.0,0.0," in lines[1]
+    # On an 80-column terminal the table leaves columns out rather than cut
+    # figures short (new-user trial: "466,9…" for a cost).
+    console = Console(width=80, record=True, color_system=None)
+    console.print(_report_table(again, console.width))
+    shown = console.export_text()
+    assert all(len(line) <= 80 for line in shown.splitlines())
+    assert "…" not in shown
+    for o in again.outcomes:
+        assert f"{o.total_cost:,.2f}" in shown
+    assert "left out for the terminal's width" in shown
+    wide = Console(width=200, record=True, color_system=None)
+    wide.print(_report_table(again, wide.width))
+    assert "left out" not in wide.export_text()
 
 
 @pytest.mark.slow
