@@ -39,7 +39,7 @@ import highspy
 import numpy as np
 import pulp
 
-from hubnet._highs import column_lp, silence_highs_banner
+from hubnet._highs import column_lp, quiet_highs, use_threads
 from hubnet.config import HubModelParams, SolverParams
 from hubnet.data import NetworkData
 from hubnet.heuristics import polish_multiple
@@ -76,7 +76,7 @@ def _costs(data: NetworkData, d: np.ndarray, params: HubModelParams, cand: np.nd
 
 
 def _origin_cut(
-    costs: _Costs, i: int, y: np.ndarray, support: np.ndarray
+    costs: _Costs, i: int, y: np.ndarray, support: np.ndarray, threads: int | None = None
 ) -> tuple[float, np.ndarray, float]:
     """Solve origin i's routing LP on the open (or partly open) hubs.
 
@@ -90,6 +90,8 @@ def _origin_cut(
         Hub values over candidates, in [0, 1].
     support
         Candidate positions with ``y > 0``.
+    threads
+        HiGHS threads, as for the whole solve.
 
     Returns
     -------
@@ -134,8 +136,7 @@ def _origin_cut(
     rhs = np.concatenate([[1.0], np.zeros(q), w[dests]])
 
     lp = column_lp(cost, (np.zeros(n_col), upper), (rhs, rhs), (start, rows, vals))
-    h = highspy.Highs()
-    h.setOptionValue("output_flag", False)
+    h = quiet_highs(threads)
     h.setOptionValue("presolve", _SUB_PRESOLVE)
     h.passModel(lp)
     h.run()
@@ -303,7 +304,7 @@ def solve_multiple_benders(
         Best hub set (matrix indices) and the solve report.
     """
     t0 = time.perf_counter()
-    silence_highs_banner()
+    use_threads(opts.threads)
     cand = np.array([k for k, s in enumerate(data.sites) if s.is_candidate])
     q = len(cand)
     costs = _costs(data, d, params, cand)
@@ -335,7 +336,7 @@ def solve_multiple_benders(
         support = np.nonzero(y_sep > 1e-9)[0]
         added, total = 0, 0.0
         for pos_i, i in enumerate(senders_list):
-            const, coef, value = _origin_cut(costs, i, y_sep, support)
+            const, coef, value = _origin_cut(costs, i, y_sep, support, opts.threads)
             total += value
             if y_now is not None and th_now is not None:
                 if th_now[pos_i] >= const - coef @ y_now - 1e-7 * max(1.0, abs(const)):

@@ -35,7 +35,7 @@ from dataclasses import dataclass, field
 import highspy
 import numpy as np
 
-from hubnet._highs import column_lp, silence_highs_banner
+from hubnet._highs import column_lp, quiet_highs
 from hubnet.config import HubModelParams
 from hubnet.data import NetworkData
 from hubnet.model import allocation_costs
@@ -99,6 +99,7 @@ def solve_path_relaxation(
     params: HubModelParams,
     *,
     time_limit_s: float | None = None,
+    threads: int | None = None,
     integer: bool = False,
     gap: float = 1e-6,
 ) -> PathRelaxation | None:
@@ -114,6 +115,8 @@ def solve_path_relaxation(
         Model parameters (single allocation, uncapacitated).
     time_limit_s
         Seconds the LP may take; ``None`` for no limit.
+    threads
+        HiGHS threads (``None``: HiGHS's default), as for the whole solve.
     integer
         Solve the path formulation itself (allocations binary) by branch and
         bound, to the relative ``gap``: for when the relaxation is not integral.
@@ -204,9 +207,7 @@ def solve_path_relaxation(
             col_lo[xcol(np.array(k), np.array(a))] = 1.0
 
     lp = column_lp(cost, (col_lo, col_hi), (row_lo, row_hi), (start, row, val))
-    silence_highs_banner()
-    h = highspy.Highs()
-    h.setOptionValue("output_flag", False)
+    h = quiet_highs(threads)
     if time_limit_s is not None:
         h.setOptionValue("time_limit", max(float(time_limit_s), 0.01))
     if integer:

@@ -21,7 +21,7 @@ from pathlib import Path
 import numpy as np
 import pulp
 
-from hubnet._highs import silence_highs_banner
+from hubnet._highs import silence_highs_banner, use_threads
 from hubnet.benders import solve_multiple_benders
 from hubnet.config import HubModelParams, SolverName, SolverParams
 from hubnet.data import NetworkData
@@ -219,6 +219,7 @@ def run_solver(
     if opts.name == "highs":
         if not pulp.HiGHS().available():
             raise SolverError("HiGHS is not available: pip install highspy")
+        use_threads(opts.threads)
         try:
             prob.solve(_highs(opts, log_path, progress))
             log_text = Path(log_path).read_text(errors="replace")
@@ -436,7 +437,9 @@ def _solve_by_path_relaxation(
     """
     t0 = time.perf_counter()
     progress(f"solving the path relaxation for {data.n} sites with HiGHS")
-    relaxed = solve_path_relaxation(data, d, params, time_limit_s=opts.time_limit_s)
+    relaxed = solve_path_relaxation(
+        data, d, params, time_limit_s=opts.time_limit_s, threads=opts.threads
+    )
     spent = time.perf_counter() - t0
     if relaxed is None:
         progress("path relaxation not solved: solving the flow model")
