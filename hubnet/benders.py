@@ -177,6 +177,8 @@ class _MasterResult:
     bound: float  # proven lower bound on the master's optimum
     y: np.ndarray
     theta: np.ndarray
+    #: LP reduced costs of the hub variables (LP solves with HiGHS only).
+    reduced: np.ndarray | None = None
 
 
 class _Master:
@@ -259,12 +261,16 @@ class _Master:
         col = np.asarray(h.getSolution().col_value)
         infeasible = status == highspy.HighsModelStatus.kInfeasible
         proven = status == highspy.HighsModelStatus.kOptimal
+        reduced = None
         if self.mip:
             ok = info.primal_solution_status == 2  # kSolutionStatusFeasible
             bound = float(info.mip_dual_bound)
         else:
             ok = proven
             bound = float(info.objective_function_value) if proven else -np.inf
+            if ok:
+                dual = np.asarray(h.getSolution().col_dual)
+                reduced = dual[[v.index for v in self.y]]
         return _MasterResult(
             ok=ok and not infeasible,
             proven=proven,
@@ -273,7 +279,32 @@ class _Master:
             bound=bound if np.isfinite(bound) else -np.inf,
             y=col[[v.index for v in self.y]] if ok else np.zeros(len(self.y)),
             theta=col[[v.index for v in self.theta]] if ok else np.zeros(len(self.theta)),
+            reduced=reduced,
         )
+
+    def fix_by_reduced_cost(self, lp: _MasterResult, incumbent: float) -> tuple[int, int]:
+        """Fix the hubs that no plan cheaper than ``incumbent`` can change.
+
+        ``lp`` is a solved LP relaxation of the master (with some of the
+        cuts: still a relaxation of the problem). A plan that opens hub a
+        where the LP has it closed costs at least the LP value plus a's
+        reduced cost, and one that closes a hub the LP has open at least the
+        LP value minus it; where that exceeds the incumbent (currency per
+        day), the hub is fixed closed or open for the integer phase.
+
+        Returns the number of hubs fixed closed and fixed open.
+        """
+        if lp.reduced is None or self.highs is None or not np.isfinite(incumbent):
+            return 0, 0
+        slack = incumbent - lp.value + 1e-9 * max(1.0, abs(incumbent))
+        closed = (lp.y <= 1e-9) & (lp.reduced > slack)
+        opened = (lp.y >= 1 - 1e-9) & (-lp.reduced > slack)
+        for a in np.nonzero(closed | opened)[0]:
+            v = self.y[int(a)]
+            lo, hi = (1.0, 1.0) if opened[a] else (0.0, 0.0)
+            v.lowBound, v.upBound = lo, hi
+            self.highs.changeColBounds(v.index, lo, hi)
+        return int(closed.sum()), int(opened.sum())
 
 
 def solve_multiple_benders(
@@ -374,12 +405,13 @@ def solve_multiple_benders(
     weight = 0.5 if core.any() else 1.0
     history: list[float] = []
     last_y: np.ndarray | None = None
+    last_lp: _MasterResult | None = None
     while not out_of_time() and it < 500:
         it += 1
         res = master.solve(time_left())
         if not res.ok:
             break
-        last_y = res.y
+        last_y, last_lp = res.y, res
         bound = max(bound, res.bound)
         history.append(bound)
         if len(history) > 4 and bound - history[-5] <= 1e-6 * max(1.0, abs(bound)):
@@ -418,6 +450,18 @@ def solve_multiple_benders(
             y_best[[pos[k] for k in best_hubs]] = 1.0
             add_cuts(y_best, None, None, "lpplan")
 
+    # Reduced-cost fixing: hubs that only plans dearer than the best one in
+    # hand could open (or close) are fixed, which shrinks the integer master.
+    fixed = False
+    if last_lp is not None and best_hubs is not None:
+        n_closed, n_open = master.fix_by_reduced_cost(last_lp, best_cost)
+        fixed = n_closed + n_open > 0
+        if fixed:
+            progress(
+                f"reduced cost against plan {best_cost:,.2f}: {n_closed} of {q} candidate hubs "
+                f"ruled out, {n_open} fixed open"
+            )
+
     # Phase 2: integer master, one exact pricing and cut per new hub set.
     master.make_integer()
     status: RunStatus = "time_limit"
@@ -425,6 +469,11 @@ def solve_multiple_benders(
     while not out_of_time():
         rounds += 1
         res = master.solve(time_left())
+        if res.infeasible and fixed:
+            # No hub set left open beats the plan in hand: it is optimal.
+            bound = best_cost
+            status = "optimal"
+            break
         if res.infeasible:
             status = "infeasible"
             break
@@ -432,6 +481,9 @@ def solve_multiple_benders(
             break
         if res.proven:
             bound = max(bound, res.bound)
+        if fixed:
+            # The master bounds only the plans cheaper than the best one.
+            bound = min(bound, best_cost)
         yv = np.round(res.y)
         hubs = sorted(int(cand[a]) for a in np.nonzero(yv > 0.5)[0])
         cost = _plan_cost(data, d, params, hubs)
