@@ -153,7 +153,7 @@ def check(
     total = sum(d.volume for d in data.demand)
     _err.print(
         f"ok: {data.n} sites ({cand} candidate hubs), {len(data.demand)} OD pairs, "
-        f"{total:,.1f} {data.volume_unit} per day; distances: {sc.distances.source}"
+        f"{total:,.10g} {data.volume_unit} per day; distances: {sc.distances.source}"
     )
 
 

@@ -60,7 +60,7 @@ def map_command(
         bool, typer.Option("--verbose", "-v", help="Show tracebacks.", metavar="")
     ] = False,
 ) -> None:
-    """Draw a run folder's route map as one HTML file that opens without a network."""
+    """Draw a run folder's route map as one HTML file (offline, but for the base map)."""
     from hubnet.report.maps import write_map
 
     _check_tiles(tiles)

@@ -453,6 +453,11 @@ def plan_tasks(
     return sweep_id, tasks
 
 
+def _local_cluster(workers: int) -> str:
+    """``local cluster, N worker(s)`` for the sweep's report."""
+    return f"local cluster, {workers} worker{'' if workers == 1 else 's'}"
+
+
 #: Statuses whose recorded wall time says how long a scenario takes.
 _TIMED_STATUSES = ("optimal", "time_limit", "no_solution", "infeasible")
 
@@ -757,7 +762,7 @@ def run_sweep(
         with contextlib.ExitStack() as stack:
             if client is None:
                 client = stack.enter_context(dask_client(workers, scheduler))
-            where = scheduler or f"local cluster, {len(client.scheduler_info()['workers'])} workers"
+            where = scheduler or _local_cluster(len(client.scheduler_info()["workers"]))
 
             def on_event(event: Any) -> None:
                 _, msg = event
