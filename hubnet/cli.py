@@ -16,7 +16,7 @@ from typing import Annotated
 import typer
 from rich.markup import escape
 
-from hubnet.cli_common import err_console, fail
+from hubnet.cli_common import err_console, fail, switch
 from hubnet.cli_frontier import frontier_command
 from hubnet.cli_report import map_command, report_command
 from hubnet.cli_sweep import (
@@ -58,9 +58,7 @@ def solve(
     out: Annotated[Path, typer.Option("--out", "-o", help="Run folder to write.")] = Path(
         "runs/latest"
     ),
-    force: Annotated[
-        bool, typer.Option("--force", help="Replace the run folder if it exists.", metavar="")
-    ] = False,
+    force: Annotated[bool, switch("--force", help="Replace the run folder if it exists.")] = False,
     hubs: Annotated[
         int | None, typer.Option("--hubs", help="Override model.hubs (number of hubs).")
     ] = None,
@@ -80,12 +78,10 @@ def solve(
     log_format: LogFormatOption = "plain",
     warm_start: WarmStartOption = None,
     history: HistoryOption = None,
-    quiet: Annotated[
-        bool, typer.Option("--quiet", "-q", help="Print only errors.", metavar="")
-    ] = False,
+    quiet: Annotated[bool, switch("--quiet", "-q", help="Print only errors.")] = False,
     verbose: Annotated[
         bool,
-        typer.Option("--verbose", "-v", help="Show tracebacks and the solver log.", metavar=""),
+        switch("--verbose", "-v", help="Show tracebacks and the solver log."),
     ] = False,
 ) -> None:
     """Solve a scenario and write its run folder (summary.json and tables).
@@ -138,7 +134,7 @@ def solve(
 @app.command()
 def check(
     config: Annotated[Path, typer.Argument(help="Scenario config (TOML).")],
-    verbose: Annotated[bool, typer.Option("--verbose", "-v", metavar="")] = False,
+    verbose: Annotated[bool, switch("--verbose", "-v")] = False,
 ) -> None:
     """Validate a scenario's config and input files without solving."""
     from hubnet.api import load_scenario

@@ -1,8 +1,8 @@
-"""What every ``hubnet`` command shares: the error console and the failure exit."""
+"""What every ``hubnet`` command shares: the error console, the failure exit, on/off switches."""
 
 from __future__ import annotations
 
-from typing import NoReturn
+from typing import Any, NoReturn
 
 import typer
 from rich.console import Console
@@ -12,6 +12,15 @@ from hubnet.errors import EXIT_ERROR, HubnetError
 
 #: Messages and progress go to standard error; stdout stays free for data.
 err_console = Console(stderr=True, highlight=False, soft_wrap=True)
+
+
+def switch(*names: str, help: str | None = None) -> Any:  # noqa: A002 (typer's name)
+    """A ``typer.Option`` for an on/off switch (``--force``, ``-v``...).
+
+    It shows no value type in ``--help``: typer would print ``<bool>``
+    beside it, which reads as if the switch took a value.
+    """
+    return typer.Option(*names, help=help, metavar="")
 
 
 def fail(err: BaseException, verbose: bool) -> NoReturn:

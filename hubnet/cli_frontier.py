@@ -25,7 +25,7 @@ from rich.console import Console
 from rich.markup import escape
 from rich.table import Table
 
-from hubnet.cli_common import err_console, fail
+from hubnet.cli_common import err_console, fail, switch
 from hubnet.errors import EXIT_OK, HubnetError
 from hubnet.frontier import DEFAULT_POINTS, MIN_POINTS, Frontier
 
@@ -105,7 +105,7 @@ def frontier_command(
         ),
     ] = DEFAULT_POINTS,
     force: Annotated[
-        bool, typer.Option("--force", help="Replace the frontier folder if it exists.", metavar="")
+        bool, switch("--force", help="Replace the frontier folder if it exists.")
     ] = False,
     time_limit: Annotated[
         float | None,
@@ -114,11 +114,11 @@ def frontier_command(
         ),
     ] = None,
     quiet: Annotated[
-        bool, typer.Option("--quiet", "-q", help="Print only errors and the table.", metavar="")
+        bool, switch("--quiet", "-q", help="Print only errors and the table.")
     ] = False,
     verbose: Annotated[
         bool,
-        typer.Option("--verbose", "-v", help="Show tracebacks and the solver log.", metavar=""),
+        switch("--verbose", "-v", help="Show tracebacks and the solver log."),
     ] = False,
 ) -> None:
     """Trace the cost–time frontier: the cheapest plan, the fastest, and plans between.

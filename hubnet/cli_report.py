@@ -12,7 +12,7 @@ from typing import Annotated
 
 import typer
 
-from hubnet.cli_common import err_console, fail
+from hubnet.cli_common import err_console, fail, switch
 from hubnet.errors import EXIT_BAD_INPUT, HubnetError
 
 _err = err_console
@@ -53,12 +53,8 @@ def map_command(
             help="Sites file (id, name, lat, lon) for run folders without sites.csv.",
         ),
     ] = None,
-    force: Annotated[
-        bool, typer.Option("--force", help="Replace the --out file if it exists.", metavar="")
-    ] = False,
-    verbose: Annotated[
-        bool, typer.Option("--verbose", "-v", help="Show tracebacks.", metavar="")
-    ] = False,
+    force: Annotated[bool, switch("--force", help="Replace the --out file if it exists.")] = False,
+    verbose: Annotated[bool, switch("--verbose", "-v", help="Show tracebacks.")] = False,
 ) -> None:
     """Draw a run folder's route map as one HTML file (offline, but for the base map)."""
     from hubnet.report.maps import write_map
@@ -84,12 +80,8 @@ def report_command(
         "report.html"
     ),
     tiles: Annotated[str, typer.Option("--tiles", help=_TILES_HELP)] = "light",
-    force: Annotated[
-        bool, typer.Option("--force", help="Replace the --out file if it exists.", metavar="")
-    ] = False,
-    verbose: Annotated[
-        bool, typer.Option("--verbose", "-v", help="Show tracebacks.", metavar="")
-    ] = False,
+    force: Annotated[bool, switch("--force", help="Replace the --out file if it exists.")] = False,
+    verbose: Annotated[bool, switch("--verbose", "-v", help="Show tracebacks.")] = False,
 ) -> None:
     """Write one HTML page comparing run folders side by side, with maps and cautions."""
     from hubnet.frontier import report_run_dirs

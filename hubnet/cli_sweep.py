@@ -24,7 +24,7 @@ from rich.console import Console
 from rich.markup import escape
 from rich.table import Table
 
-from hubnet.cli_common import err_console, fail
+from hubnet.cli_common import err_console, fail, switch
 from hubnet.errors import EXIT_ERROR, HubnetError
 
 if TYPE_CHECKING:
@@ -302,30 +302,23 @@ def sweep_command(
         ),
     ] = None,
     history: HistoryOption = None,
-    force: Annotated[
-        bool, typer.Option("--force", help="Replace run folders that exist.", metavar="")
-    ] = False,
+    force: Annotated[bool, switch("--force", help="Replace run folders that exist.")] = False,
     resume: Annotated[
         bool,
-        typer.Option(
-            "--resume", help="Keep complete run folders; solve only the others.", metavar=""
-        ),
+        switch("--resume", help="Keep complete run folders; solve only the others."),
     ] = False,
     in_order: Annotated[
         bool,
-        typer.Option(
+        switch(
             "--in-order",
             help="Start the scenarios in the sweep file's order; by default the ones the "
             "run history says took longest start first, which shortens the sweep.",
-            metavar="",
         ),
     ] = False,
     quiet: Annotated[
-        bool, typer.Option("--quiet", "-q", help="Print only errors and the table.", metavar="")
+        bool, switch("--quiet", "-q", help="Print only errors and the table.")
     ] = False,
-    verbose: Annotated[
-        bool, typer.Option("--verbose", "-v", help="Show tracebacks.", metavar="")
-    ] = False,
+    verbose: Annotated[bool, switch("--verbose", "-v", help="Show tracebacks.")] = False,
 ) -> None:
     """Solve every scenario of a sweep file in parallel and compare them.
 
@@ -423,12 +416,8 @@ def runs_command(
     ] = None,
     last: Annotated[int, typer.Option("--last", "-n", min=1, help="Show the N latest runs.")] = 20,
     history: HistoryOption = None,
-    as_json: Annotated[
-        bool, typer.Option("--json", help="Print JSON lines instead of a table.", metavar="")
-    ] = False,
-    verbose: Annotated[
-        bool, typer.Option("--verbose", "-v", help="Show tracebacks.", metavar="")
-    ] = False,
+    as_json: Annotated[bool, switch("--json", help="Print JSON lines instead of a table.")] = False,
+    verbose: Annotated[bool, switch("--verbose", "-v", help="Show tracebacks.")] = False,
 ) -> None:
     """List recorded runs, latest last: status, cost, hubs, gap, time and run folder."""
     from dataclasses import asdict
@@ -559,15 +548,11 @@ def compare_command(
     run_a: Annotated[str, typer.Argument(help="Run A: a run folder, a history id or a run id.")],
     run_b: Annotated[str, typer.Argument(help="Run B, compared with A.")],
     history: HistoryOption = None,
-    as_json: Annotated[
-        bool, typer.Option("--json", help="Print JSON instead of tables.", metavar="")
-    ] = False,
+    as_json: Annotated[bool, switch("--json", help="Print JSON instead of tables.")] = False,
     max_legs: Annotated[
         int, typer.Option("--max-legs", min=0, help="Legs listed per change (added, removed).")
     ] = 20,
-    verbose: Annotated[
-        bool, typer.Option("--verbose", "-v", help="Show tracebacks.", metavar="")
-    ] = False,
+    verbose: Annotated[bool, switch("--verbose", "-v", help="Show tracebacks.")] = False,
 ) -> None:
     """Say what changed between two runs: figures, hubs, terminals, legs and inputs."""
     from hubnet.compare import compare_runs, find_run
