@@ -249,7 +249,7 @@ def _report_table(report: SweepReport, width: int = 200) -> Table:
         widest = max([len(name)] + [len(r[c]) for r in rows])
         need.append(min(widest, wrapping.get(name, widest)) + 3)  # padding and border
     shown = list(range(len(_REPORT_COLUMNS)))
-    for rank in (4, 3, 2, 1):
+    for rank in sorted({r for _n, _j, r in _REPORT_COLUMNS if r}, reverse=True):
         if sum(need[c] for c in shown) + 1 <= width:
             break
         shown = [c for c in shown if _REPORT_COLUMNS[c][2] != rank]

@@ -10,6 +10,7 @@ import numpy as np
 
 from hubnet.config import HubModelParams
 from hubnet.data import NetworkData
+from hubnet.model import allocation_costs
 from hubnet.solution import best_hub_pairs, unit_path_costs
 
 
@@ -28,6 +29,9 @@ class _Pricer:
             [np.inf if s.sort_capacity is None else s.sort_capacity for s in data.sites]
         )
         self.c, self.t, self.dist = unit_path_costs(d, params)
+        # Collection, handling at the hub and distribution of each site's
+        # volume for every hub, (n, n): the local part of an allocation.
+        self.local = allocation_costs(data, d, params, list(range(len(self.w))))
         # Transfer plus handling at the second hub (none when k == m).
         self.t2 = self.t + self.handling[None, :]
         np.fill_diagonal(self.t2, 0.0)
@@ -39,11 +43,7 @@ class _Pricer:
     def allocate(self, hubs: list[int]) -> np.ndarray | None:
         """Single allocation for a hub set: cheapest feeder cost, then 1-opt moves."""
         h = np.asarray(hubs)
-        local = (
-            self.c[:, h] * self.out_vol[:, None]
-            + self.dist[h, :].T * self.in_vol[:, None]
-            + self.handling[h][None, :] * self.out_vol[:, None]
-        )
+        local = self.local[:, h]  # a copy; the hubs' own rows are set below
         local[h, :] = np.inf
         local[h, np.arange(len(h))] = 0.0
         order = np.argsort(-self.out_vol)
