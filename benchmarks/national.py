@@ -36,7 +36,7 @@ from pathlib import Path
 
 REPO = Path(__file__).resolve().parent.parent
 PROGRESS = re.compile(
-    r"^\s*([\d.]+) s\s+still solving, \d+ s, best plan ([\d,.]+), bound ([\d,.]+), gap"
+    r"^\s*([\d.]+) s\s+still solving, \d+ s, solver's best plan ([\d,.]+), bound ([\d,.]+), gap"
 )
 FINAL = re.compile(
     r"(optimal|time_limit): least cost ([\d,.]+), bound ([\d,.]+), gap ([\d.]+) % in ([\d.]+) s"

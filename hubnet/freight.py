@@ -1479,6 +1479,8 @@ def solve_freight(
         if polished is not None and cost is not None and (base_cost is None or cost < base_cost):
             say(f"re-planned with its hubs fixed, the best plan costs {cost:,.2f}")
             start, fallback, kept = polished, cost, "re-planned plan"
+        elif cost is not None:
+            say(f"the re-planning's best, {cost:,.2f}, is not cheaper; the best plan stands")
     if sol is None or (
         fallback is not None
         and start is not None

@@ -110,7 +110,7 @@ class _HighsWithStart(pulp.HiGHS):
 def _progress_line(incumbent: float, bound: float, seconds: float) -> str:
     parts = [f"still solving, {seconds:.0f} s"]
     if np.isfinite(incumbent):
-        parts.append(f"best plan {incumbent:,.2f}")
+        parts.append(f"solver's best plan {incumbent:,.2f}")
     if np.isfinite(bound):
         parts.append(f"bound {bound:,.2f}")
     if np.isfinite(incumbent) and np.isfinite(bound) and incumbent:
@@ -204,7 +204,7 @@ def run_solver(
     """
     prob = model.problem
     options = {
-        "time_limit_s": opts.time_limit_s,
+        "time_limit_s": None if opts.time_limit_s is None else round(opts.time_limit_s, 1),
         "gap": opts.gap,
         "threads": opts.threads,
     }

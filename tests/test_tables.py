@@ -374,6 +374,20 @@ def test_describe_columns_is_markdown_naming_every_column_and_the_unit():
     assert all(line.count(" | ") == 1 for line in rows)  # pipes in the text are escaped
 
 
+def test_readme_documents_every_column_of_every_run_file():
+    # The README's column tables are describe_columns' own text (classic and
+    # freight runs) plus sites.csv: a column added in code but not in the
+    # README fails here. Regenerate with describe_columns(freight=True).
+    from pathlib import Path
+
+    from hubnet.report.workbook import SITES_COLUMNS
+
+    readme = (Path(__file__).resolve().parent.parent / "README.md").read_text(encoding="utf-8")
+    assert describe_columns(freight=True).strip() in readme
+    for column, doc in SITES_COLUMNS.items():
+        assert f"| `{column}` | {doc} |" in readme
+
+
 def test_every_money_and_volume_column_states_its_unit():
     for table, columns in COLUMNS.items():
         for column, doc in columns.items():
