@@ -51,6 +51,15 @@ EARLY = re.compile(
 REPORTED = re.compile(
     r"^(optimal|time_limit): \d+ hubs \(.*\), cost ([\d,.]+) per day, gap ([\d.]+) %", re.M
 )
+#: The target gap, as the solver measures it: (plan - bound) / plan.
+TARGET_GAP = 0.01
+
+
+def _within(plan: float, bound: float) -> bool:
+    """Whether ``plan`` is within :data:`TARGET_GAP` of ``bound`` (the solver's definition)."""
+    return plan - bound <= TARGET_GAP * abs(plan)
+
+
 BUILT = re.compile(r"model built in ([\d.]+) s: (\d+) variables, (\d+) constraints")
 
 
@@ -115,12 +124,12 @@ def main(argv: list[str] | None = None) -> int:
         print(f"reported: {reported[1]}, cost {cost:,.2f}, gap {gap:.3f} % (to the bound above)")
     # Plans in the order they appeared: the outside ones, then the solver's.
     timeline = sorted([(t, inc) for t, inc in outside] + [(t, inc) for t, inc, _ in points])
-    within = next((t for t, inc in timeline if inc <= bound * 1.01), None)
-    if within is None and cost <= bound * 1.01:
+    within = next((t for t, inc in timeline if _within(inc, bound)), None)
+    if within is None and _within(cost, bound):
         within = wall
     # The solver's own proof: its incumbent (or an earlier plan) within 1 % of its bound then.
     proven = next(
-        (t for t, inc, b in points if min([inc] + [e for te, e in outside if te <= t]) <= b * 1.01),
+        (t for t, inc, b in points if _within(min([inc] + [e for te, e in outside if te <= t]), b)),
         None,
     )
     if proven is None and gap <= 1.0:
