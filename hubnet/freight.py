@@ -1346,10 +1346,12 @@ def solve_freight(
     """Choose hubs, routes and vehicles for a network with vehicle classes.
 
     Stages: a starting plan from a local search over hub sets; the whole
-    MILP; and, when the run has a time limit and the MILP stops short of its
-    gap, the best plan so far re-planned by the solver with its hubs fixed
-    (:func:`polish_plan`, in the last :data:`POLISH_SHARE` of the time).
-    The cheapest plan is returned, with its gap to the whole MILP's bound.
+    MILP; and, when the run has a time limit, the starting plan meets every
+    constraint and the MILP stops short of its gap, the best plan so far
+    re-planned by the solver with its hubs fixed (:func:`polish_plan`, in
+    the last :data:`POLISH_SHARE` of the time). The cheapest plan is
+    returned, with its gap to the whole MILP's bound (status ``optimal``
+    when that gap is within ``opts.gap``).
 
     Parameters
     ----------
@@ -1437,54 +1439,54 @@ def solve_freight(
     fallback = _priced_start(data, st, params, fp, start)
     if fallback is not None:
         say(f"starting plan costs {fallback:,.2f}; kept in case the solver finds nothing better")
-    # With a time limit, the whole model leaves a share of it for re-planning
-    # the best plan's hubs (polish_plan) in case it stops short of its gap.
-    polishing = start is not None and opts.time_limit_s is not None
+    # With a time limit and a starting plan that meets every constraint, the
+    # whole model leaves a share of the time for re-planning the best plan's
+    # hubs (polish_plan) in case it stops short of its gap.
+    polishing = fallback is not None and opts.time_limit_s is not None
     whole = _left(opts, t0, 1.0 - POLISH_SHARE) if polishing else _left(opts, t0)
     sol: Solution | None = None
     plan: FreightPlan | None = None
+    t1 = time.perf_counter()
     try:
         model, stats = _solve_model(data, st, params, fp, whole, say, "least cost")
     except NoSolutionError:
         if fallback is None or start is None:
             raise
         say("no plan from the solver in its share of the time limit")
-        stats = SolveStats(opts.name, "time_limit", fallback, None, None, 0.0, 0.0, "freight")
-    else:
-        stats = dataclasses.replace(
-            stats, build_seconds=time.perf_counter() - t0 - stats.solve_seconds
+        stats = SolveStats(
+            opts.name, "time_limit", fallback, None, None, time.perf_counter() - t1, 0.0, "freight"
         )
+    else:
         plan = read_plan(model, fp)
         sol = evaluate_freight(data, st, params, fp, plan, stats, scenario=scenario)
     kept = "starting plan"
     if polishing and stats.status != "optimal":
-        if (
-            sol is not None
-            and plan is not None
-            and (fallback is None or sol.costs["total"] <= fallback)
-        ):
-            base: FreightPlan = plan
-            base_cost: float | None = sol.costs["total"]
-        else:
-            assert start is not None
-            base, base_cost = start, fallback
-        polished, log = polish_plan(data, st, params, fp, base, _left(opts, t0), say)
-        cost = _priced_start(data, st, params, fp, polished)
-        stats = dataclasses.replace(
-            stats,
-            log=stats.log
-            + "\n# the best plan's hubs fixed, routes and vehicles re-planned\n"
-            + log,
+        assert start is not None and fallback is not None and opts.time_limit_s is not None
+        base, base_cost = start, fallback
+        if sol is not None and plan is not None and sol.costs["total"] <= fallback:
+            base, base_cost = plan, sol.costs["total"]
+        polished, pstats = polish_plan(
+            data, st, params, fp, base, opts, say, deadline=t0 + opts.time_limit_s
         )
-        if polished is not None and cost is not None and (base_cost is None or cost < base_cost):
+        cost = _priced_start(data, st, params, fp, polished)
+        if pstats is not None:
+            stats = dataclasses.replace(
+                stats,
+                solve_seconds=stats.solve_seconds + pstats.solve_seconds,
+                log=stats.log
+                + "\n# the best plan's hubs fixed, routes and vehicles re-planned\n"
+                + pstats.log,
+            )
+        if polished is not None and cost is not None and _cheaper(cost, base_cost):
             say(f"re-planned with its hubs fixed, the best plan costs {cost:,.2f}")
             start, fallback, kept = polished, cost, "re-planned plan"
-        elif cost is not None:
+        elif polished is not None and cost is not None:
             say(f"the re-planning's best, {cost:,.2f}, is not cheaper; the best plan stands")
+        elif polished is not None:
+            say("the re-planned plan breaks a deadline or the transit cap; the best plan stands")
+    stats = dataclasses.replace(stats, build_seconds=time.perf_counter() - t0 - stats.solve_seconds)
     if sol is None or (
-        fallback is not None
-        and start is not None
-        and fallback < sol.costs["total"] - 1e-6 * abs(sol.costs["total"])
+        fallback is not None and start is not None and _cheaper(fallback, sol.costs["total"])
     ):
         assert start is not None and fallback is not None
         if sol is None:
@@ -1493,16 +1495,25 @@ def solve_freight(
             say(f"the {kept} ({fallback:,.2f}) is cheaper than the whole model's; keeping it")
         bound = stats.best_bound
         gap = None if bound is None else max(0.0, (fallback - bound) / max(abs(fallback), 1e-9))
-        stats = dataclasses.replace(stats, objective=fallback, gap=gap)
+        # Within the gap asked for, against the whole model's bound: proven.
+        status = "optimal" if gap is not None and gap <= opts.gap else stats.status
+        stats = dataclasses.replace(stats, status=status, objective=fallback, gap=gap)
         sol = evaluate_freight(data, st, params, fp, start, stats, scenario=scenario)
-    elif sol.stats is not stats:  # the whole model's plan stands; keep the re-planning's log
+    else:  # the whole model's plan stands; its stats gain the re-planning's time and log
         sol = dataclasses.replace(sol, stats=stats)
     return sol
+
+
+def _cheaper(cost: float, than: float) -> bool:
+    """Whether ``cost`` is below ``than`` by more than the solvers' 1e-6 relative tolerance."""
+    return cost < than - 1e-6 * abs(than)
 
 
 #: Share of the time left after the starting plan that the whole model
 #: leaves for :func:`polish_plan` when the run has a time limit.
 POLISH_SHARE = 0.25
+#: Seconds :func:`polish_plan` needs at least, after building its model.
+POLISH_MIN_S = 2.0
 
 
 def polish_plan(
@@ -1513,7 +1524,9 @@ def polish_plan(
     start: FreightPlan,
     opts: SolverParams,
     say: Callable[[str], None],
-) -> tuple[FreightPlan | None, str]:
+    *,
+    deadline: float | None = None,
+) -> tuple[FreightPlan | None, SolveStats | None]:
     """Re-plan routes, direct lanes and vehicles for a plan's hubs with the solver.
 
     The local search prices a hub set with a greedy allocation and
@@ -1521,14 +1534,17 @@ def polish_plan(
     its time on the hub choice; the freight MILP with ``start``'s hubs fixed
     open (every other candidate closed) is much easier and its bound tight
     (France national demo: the local search's 1,196,850 per day re-planned
-    to 1,158,502 in 140 s). Stops at ``opts.gap`` or ``opts.time_limit_s``.
+    to 1,158,502 in 140 s). Stops at ``opts.gap`` or ``opts.time_limit_s``,
+    or, when ``deadline`` is given, at that :func:`time.perf_counter` value
+    (the limit is worked out after the model is built).
 
     Returns
     -------
     tuple
         The re-planned plan (None when the solver found none: the hubs'
-        deadlines or capacities leave no plan, or time ran out) and the
-        solver log.
+        deadlines or capacities leave no plan, time ran out, or the solver
+        failed) and the solver's stats (None when less than
+        :data:`POLISH_MIN_S` was left to solve).
     """
     from hubnet.solve import run_solver
 
@@ -1538,15 +1554,25 @@ def polish_plan(
         v = model.assign.get((k, k))
         if v is not None:
             v.lowBound = v.upBound = 1 if k in hubs else 0
+    if deadline is not None:
+        left = deadline - time.perf_counter()
+        if left < POLISH_MIN_S:
+            say(f"{max(left, 0.0):.1f} s left: too little to re-plan the best plan's hubs")
+            return None, None
+        opts = dataclasses.replace(opts, time_limit_s=left)
     limit = f" (limit {opts.time_limit_s:.0f} s)" if opts.time_limit_s else ""
     say(f"re-planning routes and vehicles for the best plan's {len(hubs)} hubs{limit}")
-    stats = run_solver(
-        model, opts, lambda line: say(f"hubs fixed: {line}"), cbc_options=("preprocess on",)
-    )
+    try:
+        stats = run_solver(
+            model, opts, lambda line: say(f"hubs fixed: {line}"), cbc_options=("preprocess on",)
+        )
+    except SolverError as err:  # a plan is in hand: the run goes on without this one
+        say(f"the re-planning failed ({err}); the best plan stands")
+        return None, None
     if stats.objective is None:
         say(f"no re-planned plan ({stats.status}); the best plan stands")
-        return None, stats.log
-    return read_plan(model, fp), stats.log
+        return None, stats
+    return read_plan(model, fp), stats
 
 
 def _priced_start(
