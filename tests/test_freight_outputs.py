@@ -332,6 +332,8 @@ def test_summary_agrees_with_the_tables(
     assert s["freight_settings"]["carbon_price_per_t"] == CARBON_PRICE_PER_T
     assert s["freight_settings"]["direct_min_load"] == 1.5
     assert s["freight"]["driving_rules"] == "EU 561/2006"
+    # the classic per-unit-km cost factors play no part in a freight plan
+    assert set(s["model"]) == {"allocation", "hubs", "capacitated"}
 
 
 def test_workbook_holds_the_freight_tables(run: FreightRun) -> None:

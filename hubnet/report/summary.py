@@ -240,7 +240,8 @@ def _freight_config_info(config: ScenarioConfig) -> dict[str, Any]:
 def _config_info(config: ScenarioConfig) -> dict[str, Any]:
     """The parts of a config that explain the figures (model, distances, inputs).
 
-    A freight config (one naming a vehicles file) adds the vehicles file and
+    A freight config (one naming a vehicles file) leaves the classic cost
+    factors out of ``model``, adds the vehicles file and
     the unit weight and cubic volume to ``inputs``, and the ``service``,
     ``hours`` and ``freight_settings`` (the ``[freight]`` section) keys.
     """
@@ -265,6 +266,11 @@ def _config_info(config: ScenarioConfig) -> dict[str, Any]:
         },
     }
     if inp.vehicles is not None:
+        # The freight model prices vehicles, not unit-km: the classic cost
+        # factors play no part in its figures.
+        for key in ("collection_factor", "transfer_factor", "distribution_factor"):
+            del info["model"][key]
+        del info["model"]["cost_per_unit_km"]
         info["inputs"].update(
             {
                 "vehicles": inp.vehicles,
