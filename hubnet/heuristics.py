@@ -105,56 +105,273 @@ class _Pricer:
         return float(cost + self.fixed[h].sum())
 
 
+class _MultipleMoves:
+    """Exact costs of hub-set moves under multiple allocation, O(n^2) per move.
+
+    For an open hub set S the state holds three ``(n, n)`` arrays of
+    per-unit costs (currency per unit): ``cur[i, j]``, the cheapest route of
+    OD pair (i, j) through hubs of S; ``reach[i, x]``, the cheapest way from
+    origin i through a first hub of S to x taken as the second hub; and
+    ``onward[x, j]``, the cheapest way from x taken as the first hub through
+    a second hub of S to destination j. Opening one more hub x then prices
+    every OD pair in O(1): through S alone, through x first, or through x
+    second. That makes a whole swap neighbourhood cost O(p q n^2) instead
+    of O(p^2 q n^2), which is what lets local search run on 200 sites.
+    """
+
+    def __init__(self, pricer: _Pricer):
+        self.c = pricer.c + pricer.handling[None, :]  # i to first hub k, handling at k
+        self.t2 = pricer.t2  # k to m with handling at m, 0 on the diagonal
+        self.dist = pricer.dist  # m to j
+        self.fixed = pricer.fixed
+        self.mask = pricer.w > 0
+        self.all_flows = bool(self.mask.all())
+        self.w = np.where(self.mask, pricer.w, 0.0)
+        self.n = pricer.w.shape[0]
+
+    def empty(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """The state of no open hub: every cost infinite."""
+        n = self.n
+        return np.full((n, n), np.inf), np.full((n, n), np.inf), np.full((n, n), np.inf)
+
+    def add(
+        self, state: tuple[np.ndarray, np.ndarray, np.ndarray], x: int
+    ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """The state with hub x opened as well."""
+        cur, reach, onward = state
+        return (
+            self.priced(state, x),
+            np.minimum(reach, self.c[:, x][:, None] + self.t2[x, :][None, :]),
+            np.minimum(onward, self.t2[:, x][:, None] + self.dist[x, :][None, :]),
+        )
+
+    def state(self, hubs: list[int]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """The state of hub set ``hubs``."""
+        st = self.empty()
+        for x in hubs:
+            st = self.add(st, x)
+        return st
+
+    def priced(self, state: tuple[np.ndarray, np.ndarray, np.ndarray], x: int) -> np.ndarray:
+        """``(n, n)`` per-unit route costs once hub x is opened as well."""
+        cur, reach, onward = state
+        via_x_first = self.c[:, x][:, None] + np.minimum(onward[x, :], self.dist[x, :])[None, :]
+        via_x_second = reach[:, x][:, None] + self.dist[x, :][None, :]
+        return np.minimum(cur, np.minimum(via_x_first, via_x_second))
+
+    def total(self, matrix: np.ndarray) -> float:
+        """Routing cost of per-unit costs ``matrix``, currency per day."""
+        if self.all_flows:
+            return float((self.w * matrix).sum())
+        with np.errstate(invalid="ignore"):
+            return float(np.where(self.mask, self.w * matrix, 0.0).sum())
+
+    def cost(self, hubs: list[int]) -> float:
+        """Whole cost of hub set ``hubs`` (routing and fixed), currency per day."""
+        return self.total(self.state(hubs)[0]) + float(self.fixed[hubs].sum())
+
+    def with_each(
+        self, state: tuple[np.ndarray, np.ndarray, np.ndarray], xs: list[int], chunk: int = 16
+    ) -> np.ndarray:
+        """Routing cost (currency per day) of the state's hubs plus each x in ``xs``."""
+        cur, reach, onward = state
+        out = np.empty(len(xs))
+        for s in range(0, len(xs), chunk):
+            x = np.asarray(xs[s : s + chunk])
+            via_first = (
+                self.c[:, x].T[:, :, None] + np.minimum(onward[x, :], self.dist[x, :])[:, None, :]
+            )
+            via_second = reach[:, x].T[:, :, None] + self.dist[x, :][:, None, :]
+            m = np.minimum(cur[None], np.minimum(via_first, via_second))
+            if not self.all_flows:
+                m[:, ~self.mask] = 0.0
+            out[s : s + len(x)] = np.einsum("xij,ij->x", m, self.w)
+        return out
+
+
 def _greedy_multiple(
     pricer: _Pricer, cand: list[int], forced: list[int], target: int | None
 ) -> list[int]:
     """Add hubs one at a time, each the one that lowers multiple-allocation cost most.
 
-    Incremental: with ``reach[i, x]`` the cheapest cost from origin i to hub
-    x through an open first hub, and ``onward[x, j]`` the cheapest cost from
-    hub x to destination j through an open second hub, pricing a new hub x
-    costs O(n^2), so a greedy step over all candidates is O(q n^2).
-    Without a hub count, hubs are added while they pay their fixed cost.
+    Starts from the forced hubs; see :func:`_fill_multiple`.
     """
-    c = pricer.c + pricer.handling[None, :]  # (n, n): i to first hub k, with handling at k
-    t2 = pricer.t2  # (n, n): k to m with handling at m, 0 on the diagonal
-    dist = pricer.dist  # (n, n): m to j
-    w = pricer.w
-    n = w.shape[0]
-    cur = np.full((n, n), np.inf)
-    reach = np.full((n, n), np.inf)
-    onward = np.full((n, n), np.inf)
+    return _fill_multiple(_MultipleMoves(pricer), cand, list(forced), target)
 
-    def priced(x: int) -> np.ndarray:
-        via_x_first = c[:, x][:, None] + np.minimum(onward[x, :], dist[x, :])[None, :]
-        via_x_second = reach[:, x][:, None] + dist[x, :][None, :]
-        return np.minimum(cur, np.minimum(via_x_first, via_x_second))
 
-    def add(x: int) -> None:
-        nonlocal cur, reach, onward
-        cur = priced(x)
-        reach = np.minimum(reach, c[:, x][:, None] + t2[x, :][None, :])
-        onward = np.minimum(onward, t2[:, x][:, None] + dist[x, :][None, :])
+def _fill_multiple(
+    moves: _MultipleMoves, cand: list[int], hubs: list[int], target: int | None
+) -> list[int]:
+    """Open hubs greedily on top of ``hubs``, each the one that lowers the cost most.
 
-    def total(matrix: np.ndarray) -> float:
-        with np.errstate(invalid="ignore"):
-            return float(np.where(w > 0, w * matrix, 0.0).sum())
-
-    hubs: list[int] = []
-    for k in forced:
-        add(k)
-        hubs.append(k)
+    Incremental (see :class:`_MultipleMoves`): a greedy step over all
+    candidates is O(q n^2). With a hub count, hubs are added up to it;
+    without, at least one hub is opened and then hubs are added while they
+    pay their fixed cost.
+    """
+    state = moves.state(hubs)
+    hubs = list(hubs)
     free = [k for k in cand if k not in hubs]
-    current = total(cur) + pricer.fixed[hubs].sum() if hubs else np.inf
+    current = moves.total(state[0]) + moves.fixed[hubs].sum() if hubs else np.inf
     while free and (target is None or len(hubs) < target):
-        costs = np.array([total(priced(k)) + pricer.fixed[hubs + [k]].sum() for k in free])
+        costs = np.array(
+            [moves.total(moves.priced(state, k)) + moves.fixed[hubs + [k]].sum() for k in free]
+        )
         best = int(np.argmin(costs))
         if target is None and hubs and costs[best] >= current:
             break
         current = float(costs[best])
-        add(free[best])
+        state = moves.add(state, free[best])
         hubs.append(free.pop(best))
     return hubs
+
+
+def _below(cost: float) -> float:
+    """The cost a move must beat to count as cheaper than ``cost`` (inf when it is inf)."""
+    return cost - 1e-9 * max(1.0, abs(cost)) if np.isfinite(cost) else np.inf
+
+
+def _descend_multiple(
+    moves: _MultipleMoves,
+    cand: list[int],
+    hubs: list[int],
+    forced: set[int],
+    target: int | None,
+    t_end: float,
+    rng: np.random.Generator,
+) -> tuple[list[int], float]:
+    """Local search over hub sets for multiple allocation, exact costs.
+
+    Moves: swap one open hub (not a forced one) for a closed candidate and,
+    without a hub count, open or close one hub. First improvement over the
+    hub taken out, in random order; for that hub the best move is taken.
+    Stops at a local optimum or at ``t_end`` (``time.perf_counter``).
+
+    Returns the hub set and its cost, currency per day.
+    """
+    import time
+
+    current = list(hubs)
+    cost = moves.cost(current)
+    while time.perf_counter() < t_end:
+        closed = [k for k in cand if k not in current]
+        found: tuple[float, list[int]] | None = None
+        if target is None and closed:
+            # Open one more hub.
+            vals = moves.with_each(moves.state(current), closed) + moves.fixed[current].sum()
+            vals += moves.fixed[closed]
+            a = int(np.argmin(vals))
+            if vals[a] < _below(cost):
+                found = (float(vals[a]), current + [closed[a]])
+        order = [k for k in current if k not in forced]
+        rng.shuffle(order)
+        for out in order:
+            if found is not None or time.perf_counter() > t_end:
+                break
+            rest = [k for k in current if k != out]
+            state = moves.state(rest)
+            rest_fixed = float(moves.fixed[rest].sum())
+            if target is None and rest:
+                dropped = moves.total(state[0]) + rest_fixed
+                if dropped < _below(cost):
+                    found = (dropped, rest)
+            if closed:
+                vals = moves.with_each(state, closed) + rest_fixed + moves.fixed[closed]
+                a = int(np.argmin(vals))
+                beat = _below(cost) if found is None else found[0]
+                if vals[a] < beat:
+                    found = (float(vals[a]), rest + [closed[a]])
+        if found is None:
+            break
+        cost, current = found
+    return sorted(current), float(cost)
+
+
+def search_multiple(
+    data: NetworkData,
+    d: np.ndarray,
+    params: HubModelParams,
+    hubs: list[int],
+    cand: list[int],
+    max_seconds: float,
+    max_idle: int = 0,
+    seed: int = 0,
+) -> tuple[list[int], float]:
+    """Iterated local search over hub sets for multiple allocation.
+
+    Descends from ``hubs`` to a local optimum (:func:`_descend_multiple`),
+    then, ``max_idle`` times in a row at most without finding a cheaper
+    plan, kicks the best plan (swaps one to three random open hubs for
+    random closed candidates) and descends again. Deterministic for a seed when
+    not cut short by ``max_seconds``.
+
+    Parameters
+    ----------
+    data, d, params
+        Network, distances (km), model parameters (multiple allocation).
+    hubs
+        Starting hub set (matrix indices).
+    cand
+        Candidate hubs the search may open.
+    max_seconds
+        Wall-clock budget (s).
+    max_idle
+        Kicks without improvement before stopping (0: descend only).
+    seed
+        Seed of the random kicks and move order.
+
+    Returns
+    -------
+    tuple
+        Best hub set (sorted matrix indices) and its cost, currency per day.
+    """
+    import time
+
+    forced = {k for k, s in enumerate(data.sites) if s.hub_status == "open"}
+    moves = _MultipleMoves(_Pricer(data, d, params))
+    t_end = time.perf_counter() + max_seconds
+    return _iterate_multiple(moves, cand, hubs, forced, params.hubs, t_end, max_idle, seed)
+
+
+def _iterate_multiple(
+    moves: _MultipleMoves,
+    cand: list[int],
+    hubs: list[int],
+    forced: set[int],
+    target: int | None,
+    t_end: float,
+    max_idle: int,
+    seed: int,
+) -> tuple[list[int], float]:
+    """The iterated local search of :func:`search_multiple` on prepared moves."""
+    import time
+
+    rng = np.random.default_rng(seed)
+    cand = sorted(set(cand) | set(hubs) | forced)
+    # A start that lacks a forced hub or has the wrong hub count is repaired:
+    # forced hubs in, the dearest-to-keep others out, then greedy fill.
+    start = sorted(forced) + [k for k in hubs if k not in forced]
+    while target is not None and len(start) > max(target, len(forced)):
+        removable = [k for k in start if k not in forced]
+        costs = [moves.cost([k for k in start if k != out]) for out in removable]
+        start.remove(removable[int(np.argmin(costs))])
+    start = _fill_multiple(moves, cand, start, target) if not start or target else start
+    best, best_cost = _descend_multiple(moves, cand, start, forced, target, t_end, rng)
+    idle = 0
+    while idle < max_idle and time.perf_counter() < t_end:
+        idle += 1
+        free = [k for k in best if k not in forced]
+        closed = [k for k in cand if k not in best]
+        size = min(int(rng.integers(1, 4)), len(free), len(closed))
+        if size == 0:
+            break
+        out = set(rng.choice(free, size=size, replace=False).tolist())
+        inn = rng.choice(closed, size=size, replace=False).tolist()
+        kicked = [k for k in best if k not in out] + inn
+        found, cost = _descend_multiple(moves, cand, kicked, forced, target, t_end, rng)
+        if cost < _below(best_cost):
+            best, best_cost, idle = found, cost, 0
+    return best, best_cost
 
 
 def starting_plan(
@@ -163,11 +380,15 @@ def starting_plan(
     params: HubModelParams,
     max_rounds: int = 50,
     max_seconds: float = 60.0,
+    max_idle: int = 20,
 ) -> tuple[list[int], np.ndarray | None, float] | None:
     """Find a good plan by greedy construction then swap/add/drop local search.
 
-    The swap search stops after ``max_rounds`` improving rounds or
-    ``max_seconds`` of wall time, whichever comes first.
+    Single allocation: the swap search stops after ``max_rounds`` improving
+    rounds or ``max_seconds`` of wall time, whichever comes first. Multiple
+    allocation: iterated local search with exact O(n^2) move costs
+    (:func:`search_multiple`), stopping after ``max_idle`` kicks in a row
+    without a cheaper plan or at ``max_seconds``.
 
     Returns
     -------
@@ -182,29 +403,33 @@ def starting_plan(
     single = params.allocation == "single"
 
     def price(hubs: list[int]) -> tuple[float, np.ndarray | None]:
+        """Single-allocation cost and allocation of a hub set."""
         if not hubs:
             return np.inf, None
-        if single:
-            assign = pricer.allocate(sorted(hubs))
-            if assign is None:
-                return np.inf, None
-            pos = {k: p for p, k in enumerate(sorted(hubs))}
-            return pricer.single_cost(
-                np.asarray(sorted(hubs)), np.array([pos[a] for a in assign])
-            ), assign
-        return pricer.multiple(sorted(hubs)), None
+        assign = pricer.allocate(sorted(hubs))
+        if assign is None:
+            return np.inf, None
+        pos = {k: p for p, k in enumerate(sorted(hubs))}
+        return pricer.single_cost(
+            np.asarray(sorted(hubs)), np.array([pos[a] for a in assign])
+        ), assign
 
     # Cheap proxy for the greedy phase: multiple-allocation pricing.
     def proxy(hubs: list[int]) -> float:
         return pricer.multiple(sorted(hubs))
 
-    target = params.hubs
-    hubs = _greedy_multiple(pricer, cand, forced, target)
-    cost, assign = price(hubs)
-    # Swap (and, without a fixed hub count, add/drop) local search.
     import time
 
     t_end = time.perf_counter() + max_seconds
+    target = params.hubs
+    hubs = _greedy_multiple(pricer, cand, forced, target)
+    if not single:
+        hubs, cost = _iterate_multiple(
+            _MultipleMoves(pricer), cand, hubs, set(forced), target, t_end, max_idle, seed=0
+        )
+        return (sorted(hubs), None, float(cost)) if np.isfinite(cost) else None
+    cost, assign = price(hubs)
+    # Swap (and, without a fixed hub count, add/drop) local search.
     for _ in range(max_rounds):
         if time.perf_counter() > t_end:
             break
@@ -217,7 +442,7 @@ def starting_plan(
             moves += [hubs + [k] for k in cand if k not in hubs]
             if len(hubs) > 1:
                 moves += [[k for k in hubs if k != out] for out in hubs if out not in forced]
-        if single and len(moves) > 40:
+        if len(moves) > 40:
             # Rank swaps with the cheap proxy; price only the most promising exactly.
             ranked = sorted(moves, key=proxy)[:40]
             moves = ranked
@@ -270,7 +495,7 @@ def polish_multiple(
     pool: list[int],
     max_seconds: float = 30.0,
 ) -> tuple[list[int], float]:
-    """Swap local search for multiple allocation, swapping in hubs from ``pool`` only.
+    """Local search for multiple allocation, opening hubs from ``pool`` only (no kicks).
 
     Used by the Benders solver with the support of the LP solution as the
     pool: a small, promising neighbourhood that exact pricing can afford on
@@ -292,25 +517,4 @@ def polish_multiple(
     tuple
         Best hub set found and its cost (currency per day).
     """
-    import time
-
-    t_end = time.perf_counter() + max_seconds
-    pricer = _Pricer(data, d, params)
-    forced = {k for k, s in enumerate(data.sites) if s.hub_status == "open"}
-    current = sorted(hubs)
-    cost = pricer.multiple(current)
-    improved = True
-    while improved and time.perf_counter() < t_end:
-        improved = False
-        for out in [k for k in current if k not in forced]:
-            for inn in [k for k in pool if k not in current]:
-                move = sorted([k for k in current if k != out] + [inn])
-                c_move = pricer.multiple(move)
-                if c_move < cost - 1e-9 * max(1.0, abs(cost)):
-                    current, cost, improved = move, c_move, True
-                    break
-                if time.perf_counter() > t_end:
-                    break
-            if improved or time.perf_counter() > t_end:
-                break
-    return current, cost
+    return search_multiple(data, d, params, hubs, sorted(set(pool) | set(hubs)), max_seconds)

@@ -323,24 +323,27 @@ def solve_network(
     NoSolutionError
         The time limit ran out before any plan was found.
     """
+    t_run = time.perf_counter()
     requested = opts.name
     opts = dataclasses.replace(opts, name=pick_solver(opts.name, params.allocation))
     check_plan_possible(data, params)
     _check_start_hubs(data, start_hubs)
-    spent = 0.0
     relaxed: PathRelaxation | None = None
     if _path_relaxation_first(data, params, requested):
-        proven, spent, relaxed = _solve_by_path_relaxation(
+        proven, _spent, relaxed = _solve_by_path_relaxation(
             data, d, params, opts, scenario, progress
         )
         if proven is not None:
             return proven
-    start = _start(data, d, params, start_hubs, progress)
+    start = _start(data, d, params, start_hubs, progress, opts.time_limit_s)
     limit = f" (limit {opts.time_limit_s:g} s)" if opts.time_limit_s else ""
     if params.allocation == "multiple" and params.formulation in ("auto", "benders"):
         progress(f"solving by Benders decomposition, master on {opts.name}{limit}")
         hubs, stats = solve_multiple_benders(
-            data, d, params, opts, None if start is None else start[0], progress
+            data, d, params, _left(opts, t_run), None if start is None else start[0], progress
+        )
+        stats = dataclasses.replace(
+            stats, options={**stats.options, "time_limit_s": opts.time_limit_s}
         )
         assign = None
     else:
@@ -357,10 +360,7 @@ def solve_network(
             if relaxed is not None and start[1] is not None:
                 _fix_by_reduced_cost(model, relaxed, start[2], progress)
         progress(f"solving with {opts.name}{limit}")
-        left = opts
-        if spent and opts.time_limit_s is not None:  # the relaxation used part of the limit
-            left = dataclasses.replace(opts, time_limit_s=max(opts.time_limit_s - spent, 0.01))
-        stats = run_solver(model, left, progress)
+        stats = run_solver(model, _left(opts, t_run), progress)
         stats = dataclasses.replace(
             stats,
             build_seconds=build_seconds,
@@ -382,6 +382,19 @@ def solve_network(
         f"gap {100 * (stats.gap or 0):.4f} % in {stats.solve_seconds:.1f} s"
     )
     return evaluate_plan(data, d, params, hubs, assign, stats, scenario=scenario)
+
+
+def _left(opts: SolverParams, t_run: float) -> SolverParams:
+    """``opts`` with the time limit cut by what the run has used since ``t_run``.
+
+    The checks, the path relaxation, the starting plan and the model build
+    all come out of the run's time limit (s); the solver gets the rest, at
+    least 0.01 s.
+    """
+    if opts.time_limit_s is None:
+        return opts
+    used = time.perf_counter() - t_run
+    return dataclasses.replace(opts, time_limit_s=max(opts.time_limit_s - used, 0.01))
 
 
 def _path_relaxation_first(data: NetworkData, params: HubModelParams, requested: str) -> bool:
@@ -487,14 +500,37 @@ def _check_start_hubs(data: NetworkData, start_hubs: Sequence[str] | None) -> No
         )
 
 
+#: Share of the run's time limit the multiple-allocation starting search may use.
+START_SHARE = 0.25
+
+
+def start_budget(n: int, allocation: str, time_limit_s: float | None) -> float:
+    """Wall-clock budget of the starting plan's local search, s.
+
+    Single allocation: 60 s (it stops earlier at a local optimum). Multiple
+    allocation: the iterated search stops by itself after 20 kicks without
+    gain, so the budget only caps it on large networks: n^2 / 1000 s, at
+    least 5 and at most 60 (40 s at 200 sites). Either way at most a
+    quarter of the run's time limit ``time_limit_s`` (s).
+    """
+    budget = 60.0 if allocation != "multiple" else min(60.0, max(5.0, n * n / 1000.0))
+    if time_limit_s is not None:
+        budget = min(budget, START_SHARE * time_limit_s)
+    return budget
+
+
 def _start(
     data: NetworkData,
     d: np.ndarray,
     params: HubModelParams,
     start_hubs: Sequence[str] | None,
     progress: Progress,
+    time_limit_s: float | None = None,
 ) -> tuple[list[int], np.ndarray | None, float] | None:
     """A starting plan: the given hubs (e.g. last night's plan) or local search.
+
+    The local search's budget is :func:`start_budget` of the run's time
+    limit ``time_limit_s`` (s).
 
     Returns the hubs, the single allocation (``None`` for multiple
     allocation) and the plan's cost, currency per day (``nan`` where not
@@ -512,7 +548,7 @@ def _start(
         progress(f"starting plan given: {len(hubs)} hubs")
         return hubs, assign, cost
     t0 = time.perf_counter()
-    budget = 5.0 if params.allocation == "multiple" else 60.0
+    budget = start_budget(data.n, params.allocation, time_limit_s)
     found = starting_plan(data, d, params, max_seconds=budget)
     if found is None:
         return None

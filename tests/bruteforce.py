@@ -103,3 +103,23 @@ def _single(c, t, dist, w, out_vol, hubs, handling, capacity) -> float:  # type:
     np.fill_diagonal(hub_t, 0.0)
     trans = (w[None, :, :] * hub_t[a[:, :, None], a[:, None, :]]).sum(axis=(1, 2))
     return float((coll + dis + trans).min())
+
+
+def multiple_allocation_cost(
+    d: np.ndarray,
+    w: np.ndarray,
+    hubs: tuple[int, ...] | list[int],
+    *,
+    rate: float = 1.0,
+    chi: float = 1.0,
+    alpha: float = 1.0,
+    delta: float = 1.0,
+    fixed: np.ndarray | None = None,
+    handling: np.ndarray | None = None,
+) -> float:
+    """Cost of one hub set under multiple allocation, by trying every hub pair per OD."""
+    n = len(d)
+    fixed = np.zeros(n) if fixed is None else fixed
+    handling = np.zeros(n) if handling is None else handling
+    c, t, dist = _unit_costs(d, rate, chi, alpha, delta)
+    return float(_multiple(c, t, dist, w, tuple(hubs), handling) + fixed[list(hubs)].sum())
