@@ -377,9 +377,13 @@ def solve_network(
             raise NoSolutionError(f"no plan found within the time limit of {opts.time_limit_s:g} s")
         raise SolverError(f"{opts.name} returned no plan")
     progress(
-        f"{stats.status}: cost {stats.objective:,.2f}, bound "
-        f"{stats.best_bound if stats.best_bound is not None else float('nan'):,.2f}, "
-        f"gap {100 * (stats.gap or 0):.4f} % in {stats.solve_seconds:.1f} s"
+        f"{stats.status}: cost {stats.objective:,.2f}, "
+        + (
+            f"bound {stats.best_bound:,.2f}, gap {100 * (stats.gap or 0):.4f} %"
+            if stats.best_bound is not None
+            else "no bound proven yet"
+        )
+        + f" in {stats.solve_seconds:.1f} s"
     )
     return evaluate_plan(data, d, params, hubs, assign, stats, scenario=scenario)
 

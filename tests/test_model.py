@@ -200,3 +200,24 @@ def test_benders_fixes_hubs_by_reduced_cost_and_keeps_the_optimum() -> None:
     assert abs(sol.costs["total"] - 135638.58) <= 0.005
     assert sol.stats.best_bound is not None
     assert sol.stats.best_bound <= sol.costs["total"] * (1 + 1e-9)
+
+
+def test_time_limited_run_says_whether_a_bound_was_proven() -> None:
+    # AP n = 100, p = 5 multiple allocation (published optimum 133482.57,
+    # Ernst and Krishnamoorthy 1998) cannot be proven in 0.05 s: the run
+    # stops at its limit with the starting plan, before any bound, and its
+    # last line says so plainly, never "bound nan".
+    data = ap_network(100)
+    lines: list[str] = []
+    sol = solve_network(
+        data,
+        euclid(data),
+        ap_params("multiple", 5),
+        SolverParams(time_limit_s=0.05),
+        progress=lines.append,
+    )
+    assert sol.stats.status == "time_limit"
+    assert not any("nan" in line for line in lines), lines
+    assert sol.stats.best_bound is None
+    assert "no bound proven yet" in lines[-1]
+    assert sol.costs["total"] >= 133482.57 - 0.005
