@@ -336,11 +336,13 @@ def solve_network(
         if proven is not None:
             return proven
     start = _start(data, d, params, start_hubs, progress, opts.time_limit_s)
-    limit = f" (limit {opts.time_limit_s:g} s)" if opts.time_limit_s else ""
     if params.allocation == "multiple" and params.formulation in ("auto", "benders"):
-        progress(f"solving by Benders decomposition, master on {opts.name}{limit}")
+        left = _left(opts, t_run)
+        progress(
+            f"solving by Benders decomposition, master on {opts.name}{_limit_text(left, opts)}"
+        )
         hubs, stats = solve_multiple_benders(
-            data, d, params, _left(opts, t_run), None if start is None else start[0], progress
+            data, d, params, left, None if start is None else start[0], progress
         )
         stats = dataclasses.replace(
             stats, options={**stats.options, "time_limit_s": opts.time_limit_s}
@@ -359,8 +361,9 @@ def solve_network(
             model.set_start(start[0], start[1])
             if relaxed is not None and start[1] is not None:
                 _fix_by_reduced_cost(model, relaxed, start[2], progress)
-        progress(f"solving with {opts.name}{limit}")
-        stats = run_solver(model, _left(opts, t_run), progress)
+        left = _left(opts, t_run)
+        progress(f"solving with {opts.name}{_limit_text(left, opts)}")
+        stats = run_solver(model, left, progress)
         stats = dataclasses.replace(
             stats,
             build_seconds=build_seconds,
@@ -399,6 +402,13 @@ def _left(opts: SolverParams, t_run: float) -> SolverParams:
         return opts
     used = time.perf_counter() - t_run
     return dataclasses.replace(opts, time_limit_s=max(opts.time_limit_s - used, 0.01))
+
+
+def _limit_text(left: SolverParams, run: SolverParams) -> str:
+    """``, 57.3 s left of the 60 s limit`` for a time-limited run, else empty."""
+    if left.time_limit_s is None or run.time_limit_s is None:
+        return ""
+    return f", {left.time_limit_s:.1f} s left of the {run.time_limit_s:g} s limit"
 
 
 def _path_relaxation_first(data: NetworkData, params: HubModelParams, requested: str) -> bool:

@@ -220,4 +220,6 @@ def test_time_limited_run_says_whether_a_bound_was_proven() -> None:
     assert not any("nan" in line for line in lines), lines
     assert sol.stats.best_bound is None
     assert "no bound proven yet" in lines[-1]
+    # The solver is told what is left of the run's limit, and says so.
+    assert any(line.endswith("s left of the 0.05 s limit") for line in lines), lines
     assert sol.costs["total"] >= 133482.57 - 0.005
