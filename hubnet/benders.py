@@ -18,7 +18,11 @@ Two phases:
    other candidates in closed form, so every cut is valid everywhere).
 2. Integer phase: the master MILP is re-solved with the cuts; each new hub
    set is priced exactly and cut, until the best plan's cost and the
-   master's bound meet within the gap.
+   master's bound meet within the gap. On HiGHS, once a plan is in hand,
+   each round asks only for the first hub set the master values under a
+   cutoff just below that plan (options ``objective_bound`` and
+   ``mip_max_improving_sols``) rather than for the master's optimum; a
+   master with no hub set left under the cutoff is the proof.
 
 Assumes leg costs satisfy the triangle inequality (true for geodesic,
 Euclidean and road distances of one metric); plan costs are always priced
@@ -48,6 +52,7 @@ from hubnet.solution import RunStatus, SolveStats, best_hub_pairs, unit_path_cos
 Progress = Callable[[str], None]
 _INF = highspy.kHighsInf
 _SUB_PRESOLVE = "off"
+_ALL_SOLUTIONS = 2_147_483_647  # HiGHS's default for mip_max_improving_sols
 
 
 @dataclass(frozen=True)
@@ -222,8 +227,16 @@ class _Master:
             kinds = np.array([highspy.HighsVarType.kInteger] * len(idx))
             self.highs.changeColsIntegrality(len(idx), idx, kinds)
 
-    def solve(self, time_left: float | None) -> _MasterResult:
-        """Solve the master (LP or MIP) within the time left (s)."""
+    def solve(self, time_left: float | None, below: float | None = None) -> _MasterResult:
+        """Solve the master (LP or MIP) within the time left (s).
+
+        With ``below`` (currency per day; HiGHS, integer phase), the solve
+        stops at the first hub set whose master value is under it instead
+        of proving the master's optimum: that hub set is cut next, and a
+        master with no hub set under ``below`` comes back infeasible, which
+        proves that no plan is cheaper. The bound reported is then the
+        master's dual bound when it stopped.
+        """
         limit = None if time_left is None else max(1.0, time_left)
         gap = self.opts.gap / 10
         if self.opts.name == "cbc":
@@ -254,6 +267,9 @@ class _Master:
         else:
             h = self.highs
             h.setOptionValue("time_limit", float(limit) if limit is not None else _INF)
+            if self.mip:
+                h.setOptionValue("objective_bound", _INF if below is None else float(below))
+                h.setOptionValue("mip_max_improving_sols", _ALL_SOLUTIONS if below is None else 1)
             h.run()
         h = self.highs
         status = h.getModelStatus()
@@ -463,12 +479,28 @@ def solve_multiple_benders(
             )
 
     # Phase 2: integer master, one exact pricing and cut per new hub set.
+    # With HiGHS and a plan in hand, each round asks the master only for a
+    # hub set that might beat the plan (the first one found under a cutoff
+    # half the gap below it) instead of the master's optimum: rounds take a
+    # fraction of the time, and the last round, with no such hub set left,
+    # is the proof (AP n = 100, p = 5: benchmarks/README.md).
     master.make_integer()
     status: RunStatus = "time_limit"
     rounds = 0
+    full_solve = opts.name == "cbc"
     while not out_of_time():
         rounds += 1
-        res = master.solve(time_left())
+        below = None if full_solve or not np.isfinite(best_cost) else best_cost
+        if below is not None:
+            below -= 0.5 * opts.gap * abs(below)
+        res = master.solve(time_left(), below)
+        if res.infeasible and below is not None:
+            # No hub set is under the cutoff: none beats the plan in hand by
+            # more than the gap. The master's own gap (a tenth of ours) may
+            # have pruned that close to the cutoff, hence the margin.
+            bound = max(bound, below * (1 - opts.gap / 10))
+            status = "optimal"
+            break
         if res.infeasible and fixed:
             # No hub set left open beats the plan in hand: it is optimal.
             bound = best_cost
@@ -479,9 +511,12 @@ def solve_multiple_benders(
             break
         if not res.ok:
             break
-        if res.proven:
-            bound = max(bound, res.bound)
-        if fixed:
+        if np.isfinite(res.bound):
+            # Under a cutoff, HiGHS may have pruned hub sets between the
+            # cutoff and the plan in hand: its bound holds up to the cutoff.
+            cap = np.inf if below is None else below * (1 - opts.gap / 10)
+            bound = max(bound, min(res.bound, cap))
+        if fixed or below is not None:
             # The master bounds only the plans cheaper than the best one.
             bound = min(bound, best_cost)
         yv = np.round(res.y)
@@ -511,6 +546,11 @@ def solve_multiple_benders(
             status = "optimal"
             break
         added, _ = add_cuts(yv, yv, res.theta, f"ip{rounds}")
+        if added == 0 and not res.proven and below is not None:
+            # A hub set the master already prices exactly came back from an
+            # early stop: prove the master's optimum from now on.
+            full_solve = True
+            continue
         if added == 0:
             # The master prices this hub set exactly already, so its value is
             # both a bound and the plan's cost: nothing is left to prove.
