@@ -53,6 +53,8 @@ Progress = Callable[[str], None]
 _INF = highspy.kHighsInf
 _SUB_PRESOLVE = "off"
 _ALL_SOLUTIONS = 2_147_483_647  # HiGHS's default for mip_max_improving_sols
+#: At most this many hub sets are cut around the master's plan in a round.
+_NEIGHBOUR_CUTS = 50
 
 
 @dataclass(frozen=True)
@@ -163,6 +165,62 @@ def _origin_cut(
     coef = alpha + (beta * w[None, :]).sum(axis=1)
     const = sigma + float((w * pi).sum())
     return const, coef, value
+
+
+class _CutCopy:
+    """The master's cuts as arrays, to value many hub sets at once."""
+
+    def __init__(self, n_senders: int) -> None:
+        self.n_senders = n_senders
+        self.origin: list[int] = []
+        self.const: list[float] = []
+        self.coef: list[np.ndarray] = []
+
+    def add(self, pos_i: int, const: float, coef: np.ndarray) -> None:
+        """Keep ``theta[pos_i] >= const - coef @ y``."""
+        self.origin.append(pos_i)
+        self.const.append(const)
+        self.coef.append(coef)
+
+    def thetas(self, hub_sets: np.ndarray) -> np.ndarray:
+        """Least ``theta`` the cuts allow per origin at each hub vector.
+
+        ``hub_sets`` is ``(m, q)``; returns ``(m, senders)``, currency per day.
+        """
+        out = np.zeros((self.n_senders, len(hub_sets)))
+        if self.origin:
+            values = np.asarray(self.const)[:, None] - np.vstack(self.coef) @ hub_sets.T
+            np.maximum.at(out, np.asarray(self.origin), values)
+        return out.T
+
+
+def _moves(
+    y0: np.ndarray, can_close: np.ndarray, can_open: np.ndarray, swaps_only: bool
+) -> np.ndarray:
+    """Hub vectors one move from ``y0``, ``(m, q)``.
+
+    A move swaps an open hub for a closed one; when the hub count is free
+    it may also open or close one hub.
+    """
+    shut = np.nonzero((y0 < 0.5) & can_open)[0]
+    open_ = np.nonzero((y0 > 0.5) & can_close)[0]
+    rows = []
+    for a in open_:
+        for b in shut:
+            row = y0.copy()
+            row[a], row[b] = 0.0, 1.0
+            rows.append(row)
+    if not swaps_only:
+        for b in shut:
+            row = y0.copy()
+            row[b] = 1.0
+            rows.append(row)
+        if y0.sum() > 1.5:
+            for a in open_:
+                row = y0.copy()
+                row[a] = 0.0
+                rows.append(row)
+    return np.array(rows).reshape(-1, len(y0))
 
 
 def _plan_cost(data: NetworkData, d: np.ndarray, params: HubModelParams, hubs: list[int]) -> float:
@@ -373,6 +431,7 @@ def solve_multiple_benders(
 
     senders_list = list(theta)
     master = _Master(prob, y, [theta[i] for i in senders_list], opts)
+    copy = _CutCopy(len(senders_list))
     n_cuts = 0
 
     def add_cuts(
@@ -390,6 +449,7 @@ def solve_multiple_benders(
                     continue
             nz = np.nonzero(coef > 1e-12 * max(1.0, abs(const)))[0]
             master.add_cut(pos_i, {int(a): float(coef[a]) for a in nz}, const, f"cut_{tag}_{i}")
+            copy.add(pos_i, const, coef)
             added += 1
         n_cuts += added
         return added, total
@@ -402,6 +462,46 @@ def solve_multiple_benders(
         core[[pos[k] for k in start_hubs if k in pos]] = 1.0
         add_cuts(core, None, None, "start")
         best_hubs, best_cost = sorted(start_hubs), _plan_cost(data, d, params, list(start_hubs))
+
+    forced_open = np.array([data.sites[int(k)].hub_status == "open" for k in cand])
+
+    def cut_around(y0: np.ndarray, below: float) -> tuple[int, float, list[int] | None]:
+        """Cut the hub sets near ``y0`` that the master still values under ``below``.
+
+        Starting from the master's plan, every hub set one move away is
+        valued with the cuts so far (numpy, no solve); those under the
+        cutoff are priced, cut, and their own neighbours looked at in turn,
+        up to ``_NEIGHBOUR_CUTS`` of them. Without this, the master would
+        offer them one per round. Returns the number of hub sets cut and the
+        cheapest of them (cost, hubs; ``inf, None`` when none).
+        """
+        can_close = np.array([(v.lowBound or 0.0) < 0.5 for v in y]) & ~forced_open
+        can_open = np.array([v.upBound is None or v.upBound > 0.5 for v in y])
+        seen = {tuple(np.nonzero(y0 > 0.5)[0])}
+        queue = [y0]
+        n_cut, cheapest, cheapest_hubs = 0, np.inf, None
+        while queue and n_cut < _NEIGHBOUR_CUTS:
+            near = _moves(queue.pop(0), can_close, can_open, params.hubs is not None)
+            keys = [tuple(np.nonzero(row > 0.5)[0]) for row in near]
+            fresh = [r for r, key in enumerate(keys) if key not in seen]
+            if not fresh:
+                continue
+            near = near[fresh]
+            th = copy.thetas(near)
+            value = th.sum(axis=1) + near @ costs.fixed
+            for r in np.argsort(value):
+                if value[r] >= below or n_cut >= _NEIGHBOUR_CUTS:
+                    break
+                key = tuple(np.nonzero(near[r] > 0.5)[0])
+                seen.add(key)
+                hubs = sorted(int(cand[a]) for a in key)
+                cost = _plan_cost(data, d, params, hubs)
+                if cost < cheapest:
+                    cheapest, cheapest_hubs = cost, hubs
+                add_cuts(near[r], near[r], th[r], f"near{n_cut}")
+                n_cut += 1
+                queue.append(near[r])
+        return n_cut, cheapest, cheapest_hubs
 
     def time_left() -> float | None:
         if opts.time_limit_s is None:
@@ -546,6 +646,12 @@ def solve_multiple_benders(
             status = "optimal"
             break
         added, _ = add_cuts(yv, yv, res.theta, f"ip{rounds}")
+        if below is not None and added > 0:
+            n_near, cost_near, hubs_near = cut_around(yv, below)
+            if cost_near < best_cost:
+                best_cost, best_hubs = cost_near, hubs_near
+            if n_near:
+                progress(f"integer phase, round {rounds}: {n_near} hub sets near it cut too")
         if added == 0 and not res.proven and below is not None:
             # A hub set the master already prices exactly came back from an
             # early stop: prove the master's optimum from now on.

@@ -196,6 +196,8 @@ def test_benders_fixes_hubs_by_reduced_cost_and_keeps_the_optimum() -> None:
         progress=said.append,
     )
     assert any("candidate hubs ruled out" in m for m in said), said
+    # The integer phase also cut hub sets near the master's plan here.
+    assert any("hub sets near it cut too" in m for m in said), said
     assert sol.stats.status == "optimal"
     assert abs(sol.costs["total"] - 135638.58) <= 0.005
     assert sol.stats.best_bound is not None
@@ -270,3 +272,32 @@ def test_benders_from_a_poor_start_reaches_the_enumerated_optimum(seed: int, p: 
         assert stats.best_bound is not None
         assert stats.best_bound <= want * (1 + 1e-9)
         assert (want - stats.best_bound) / want <= 1e-6
+
+
+def test_benders_neighbour_moves_and_cut_values() -> None:
+    # Checked by hand / by a plain loop, not by the model: one move from a
+    # hub set swaps one open hub for one closed hub (or, with a free hub
+    # count, opens or closes one); a hub set's theta under a set of cuts is
+    # the largest cut value per origin, never below zero.
+    from hubnet.benders import _CutCopy, _moves
+
+    y0 = np.array([1.0, 0.0, 1.0, 0.0, 0.0])
+    can_close = np.array([True, True, False, True, True])  # hub 2 is forced open
+    can_open = np.array([True, True, True, True, False])  # hub 4 is ruled out
+    swaps = _moves(y0, can_close, can_open, swaps_only=True)
+    assert {tuple(np.nonzero(r)[0]) for r in swaps} == {(1, 2), (2, 3)}
+    free = _moves(y0, can_close, can_open, swaps_only=False)
+    assert {tuple(np.nonzero(r)[0]) for r in free} == {(1, 2), (2, 3), (0, 1, 2), (0, 2, 3), (2,)}
+    rng = np.random.default_rng(7)
+    copy = _CutCopy(3)
+    cuts = [
+        (int(rng.integers(3)), float(rng.uniform(0, 50)), rng.uniform(0, 20, 5)) for _ in range(12)
+    ]
+    for origin, const, coef in cuts:
+        copy.add(origin, const, coef)
+    sets = np.array([[1, 0, 1, 0, 0], [0, 1, 1, 1, 0], [1, 1, 1, 1, 1]], dtype=float)
+    got = copy.thetas(sets)
+    for m, y in enumerate(sets):
+        for origin in range(3):
+            want = max([0.0] + [c - a @ y for o, c, a in cuts if o == origin])
+            assert got[m, origin] == pytest.approx(want)
