@@ -24,7 +24,9 @@ class Problem:
     Attributes
     ----------
     file
-        The file name as the user gave it (or the config file).
+        The file: a data file relative to the working folder (absolute
+        when outside it, see :func:`hubnet.inputs.shown_path`); a config or
+        sweep file as the user gave it.
     row
         The row as the user sees it: for CSV and Excel the spreadsheet row,
         with the header on row 1 and the first data row on row 2; for TOML

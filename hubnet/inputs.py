@@ -364,11 +364,25 @@ def read_table(
     return found[1]
 
 
+def shown_path(path: Path) -> str:
+    """A data file as its problems name it.
+
+    Relative to the working folder when it lies under it
+    (``demo_regions/iberia/demand.csv``), else the absolute path, so that
+    a user with several scenarios can tell which file is meant.
+    """
+    full = path.resolve()
+    try:
+        return str(full.relative_to(Path.cwd().resolve()))
+    except (ValueError, OSError):
+        return str(full)
+
+
 def _read(
     path: Path, sheet: str | None, table: str | None, problems: _Problems
 ) -> tuple[str, pd.DataFrame] | None:
     """Read a file; on failure record the problem and return None."""
-    label = path.name
+    label = shown_path(path)
     try:
         if not path.exists():
             raise _Unreadable(f"file not found: {path}")
@@ -467,7 +481,7 @@ def _read_excel(path: Path, sheet: str | None, table: str | None) -> tuple[str, 
         frame = pd.read_excel(
             book, sheet_name=name, dtype=object, keep_default_na=False, na_values=[]
         )
-    label = path.name if len(names) == 1 else f"{path.name} (sheet {name})"
+    label = shown_path(path) if len(names) == 1 else f"{shown_path(path)} (sheet {name})"
     return label, frame
 
 
@@ -486,7 +500,7 @@ def _read_gis(path: Path, sheet: str | None, table: str | None) -> tuple[str, pd
     if not layers:
         raise _Unreadable("the file has no layers")
     name = _pick(layers, sheet, table, "layer")
-    label = path.name if len(layers) == 1 else f"{path.name} (layer {name})"
+    label = shown_path(path) if len(layers) == 1 else f"{shown_path(path)} (layer {name})"
     try:
         read = geopandas.read_file(path, layer=name, engine="pyogrio")
     except (DataSourceError, DataLayerError, ValueError) as err:
@@ -1656,7 +1670,7 @@ def load_network(cfg: ScenarioConfig) -> NetworkData:
         m3_per_unit=cfg.freight.m3_per_unit,
         check_unit_sizes=True,
     )
-    sites_label = sites.file if sites is not None else files.sites.name
+    sites_label = sites.file if sites is not None else shown_path(files.sites)
     return _network(sites, demand, distances, opts, problems, sites_label, vehicles)
 
 

@@ -24,6 +24,15 @@ from hubnet.fleet import FreightParams, HoursParams, ServiceParams, VehicleClass
 from hubnet.inputs import InputWarning, load_network, network_from_frames
 from hubnet.scenarios import DataEdits, apply_data_edits
 
+
+@pytest.fixture(autouse=True)
+def _run_where_the_files_are(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # Problems name a data file relative to the working folder; these tests
+    # write their files to tmp_path and run there, as a user runs from the
+    # project folder, so the messages show the bare file names.
+    monkeypatch.chdir(tmp_path)
+
+
 SITES = """\
 id,name,lat,lon,hub_fixed_cost,sort_hours,cutoff,deliver_by
 BER,Berlin,52.52,13.405,1000,0.5,18:30,07:00

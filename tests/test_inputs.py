@@ -53,6 +53,14 @@ def write(path: Path, text: str) -> Path:
     return path
 
 
+@pytest.fixture(autouse=True)
+def _run_where_the_files_are(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # Problems name a data file relative to the working folder; these tests
+    # write their files to tmp_path and run there, as a user runs from the
+    # project folder, so the messages show the bare file names.
+    monkeypatch.chdir(tmp_path)
+
+
 def scenario(
     tmp_path: Path,
     sites: str | Path = SITES,
@@ -399,6 +407,28 @@ def test_every_unreadable_file_is_reported_at_once(tmp_path: Path) -> None:
     with pytest.raises(InputError) as excinfo:
         load_network(cfg)
     assert [p.file for p in excinfo.value.problems] == ["a.csv", "b.csv", "c.csv"]
+
+
+def test_a_file_under_the_working_folder_is_named_from_it(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # Two scenarios may each have a demand.csv: the message says which one.
+    folder = tmp_path / "regions" / "north"
+    folder.mkdir(parents=True)
+    cfg = scenario(folder, demand="origin,destination,volume\nBER,HAM,-1\n")
+    monkeypatch.chdir(tmp_path)
+    with pytest.raises(InputError) as excinfo:
+        load_network(cfg)
+    files = {p.file for p in excinfo.value.problems}
+    assert files == {str(Path("regions") / "north" / "demand.csv")}, files
+    # From a folder beside it, the file is named by its absolute path.
+    elsewhere = tmp_path / "elsewhere"
+    elsewhere.mkdir()
+    monkeypatch.chdir(elsewhere)
+    with pytest.raises(InputError) as excinfo:
+        load_network(cfg)
+    files = {p.file for p in excinfo.value.problems}
+    assert files == {str((folder / "demand.csv").resolve())}, files
 
 
 # --------------------------------------------------------------------------
