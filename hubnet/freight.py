@@ -1410,10 +1410,11 @@ def solve_freight(
     if start is not None and given is None:
         budget = min(120.0, 0.2 * opts.time_limit_s) if opts.time_limit_s else 120.0
         start = improve_hubs(data, st, params, fp, start, budget, say)
+    start_seconds = time.perf_counter() - t1
     if start is not None:
         say(
             f"starting plan: {len(start.hubs)} hubs, "
-            f"{sum(start.dispatches.values()):,.0f} dispatches ({time.perf_counter() - t1:.1f} s)"
+            f"{sum(start.dispatches.values()):,.0f} dispatches ({start_seconds:.1f} s)"
         )
     else:
         say("no starting plan found quickly; the solver starts from scratch")
@@ -1484,7 +1485,11 @@ def solve_freight(
             say(f"the re-planning's best, {cost:,.2f}, is not cheaper; the best plan stands")
         elif polished is not None:
             say("the re-planned plan breaks a deadline or the transit cap; the best plan stands")
-    stats = dataclasses.replace(stats, build_seconds=time.perf_counter() - t0 - stats.solve_seconds)
+    stats = dataclasses.replace(
+        stats,
+        start_seconds=start_seconds,
+        build_seconds=time.perf_counter() - t0 - stats.solve_seconds - start_seconds,
+    )
     if sol is None or (
         fallback is not None and start is not None and _cheaper(fallback, sol.costs["total"])
     ):

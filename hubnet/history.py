@@ -239,7 +239,8 @@ class RunRecord:
     hubnet_version, solver, solver_versions
         Software that made the plan.
     build_seconds, solve_seconds, wall_seconds
-        Model build, solver and whole-run wall times, seconds.
+        Model build (with the starting-plan search), solver and whole-run
+        wall times, seconds.
     run_folder
         Absolute path of the run folder (``""`` when none was written).
     started_at, finished_at
@@ -395,7 +396,7 @@ def record_from_folder(folder: str | Path, *, finished_at: str | None = None) ->
         hubnet_version=str(summary.get("hubnet_version", "")),
         solver=str(summary.get("solver", "")),
         solver_versions=info.get("solver_versions") or {},
-        build_seconds=summary.get("build_seconds"),
+        build_seconds=_build_and_start(summary),
         solve_seconds=summary.get("solve_seconds"),
         wall_seconds=_seconds_between(str(info.get("started_at", "")), finished),
         run_folder=str(folder),
@@ -426,6 +427,18 @@ def failure_record(info: Mapping[str, Any], status: str, error: str, exit_code: 
         error=error,
         exit_code=exit_code,
     )
+
+
+def _build_and_start(summary: Mapping[str, Any]) -> float | None:
+    """Build plus starting-plan seconds of a summary.
+
+    Summaries written before ``start_seconds`` existed have none: their
+    build time stands alone.
+    """
+    build = summary.get("build_seconds")
+    if build is None:
+        return None
+    return float(build) + float(summary.get("start_seconds") or 0.0)
 
 
 def _seconds_between(start: str, end: str) -> float | None:

@@ -41,6 +41,9 @@ class SolveStats:
         ``(objective - best_bound) / objective`` (0 when proven optimal).
     solve_seconds, build_seconds
         Wall time in the solver, and in building the model, seconds.
+    start_seconds
+        Wall time of the starting-plan search before the solver, seconds
+        (0 when none ran).
     formulation
         Name of the formulation / algorithm used.
     options
@@ -59,6 +62,7 @@ class SolveStats:
     formulation: str
     options: Mapping[str, object] = field(default_factory=dict)
     log: str = field(default="", repr=False)
+    start_seconds: float = 0.0
 
 
 @dataclass(frozen=True, slots=True)

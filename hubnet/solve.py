@@ -335,7 +335,9 @@ def solve_network(
         )
         if proven is not None:
             return proven
+    t_start = time.perf_counter()
     start = _start(data, d, params, start_hubs, progress, opts.time_limit_s)
+    start_seconds = time.perf_counter() - t_start
     if params.allocation == "multiple" and params.formulation in ("auto", "benders"):
         left = _left(opts, t_run)
         progress(
@@ -345,7 +347,9 @@ def solve_network(
             data, d, params, left, None if start is None else start[0], progress
         )
         stats = dataclasses.replace(
-            stats, options={**stats.options, "time_limit_s": opts.time_limit_s}
+            stats,
+            start_seconds=start_seconds,
+            options={**stats.options, "time_limit_s": opts.time_limit_s},
         )
         assign = None
     else:
@@ -367,6 +371,7 @@ def solve_network(
         stats = dataclasses.replace(
             stats,
             build_seconds=build_seconds,
+            start_seconds=start_seconds,
             options={**stats.options, "time_limit_s": opts.time_limit_s},
         )
         hubs, assign = model.open_hubs(), model.allocation()

@@ -225,7 +225,7 @@ def test_same_inputs_give_the_same_summary(tmp_path: Path) -> None:
     """Deterministic: two runs differ only in timings (and their run ids and times)."""
     a = run_job(DEMO, tmp_path / "a", overrides=FAST, edits={"close_hubs": ["SEV"]})
     b = run_job(DEMO, tmp_path / "b", overrides=FAST, edits={"close_hubs": ["SEV"]})
-    timing = {"solve_seconds", "build_seconds"}
+    timing = {"solve_seconds", "build_seconds", "start_seconds"}
     sa = {k: v for k, v in (a.summary or {}).items() if k not in timing}
     sb = {k: v for k, v in (b.summary or {}).items() if k not in timing}
     assert sa == sb
@@ -233,6 +233,10 @@ def test_same_inputs_give_the_same_summary(tmp_path: Path) -> None:
         assert (tmp_path / "a" / name).read_bytes() == (tmp_path / "b" / name).read_bytes()
     assert a.record.config_hash == b.record.config_hash
     assert a.run_id != b.run_id
+    # The history's build time holds the starting-plan search too (what the
+    # sweep orders scenarios by).
+    s = a.summary or {}
+    assert a.record.build_seconds == pytest.approx(s["build_seconds"] + s["start_seconds"])
 
 
 # --------------------------------------------------------------------------

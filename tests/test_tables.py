@@ -419,6 +419,7 @@ def test_summary_hand_case():
     assert s["hubs"] == ["H1", "H2"]
     assert s["solver"] == "highs" and s["formulation"] == "hand-built"
     assert s["solve_seconds"] == 0.25 and s["build_seconds"] == 0.125
+    assert s["start_seconds"] == 0.0  # no starting-plan search in a hand-built plan
     assert s["solver_options"] == {"time_limit_s": 60.0, "gap": 1e-6}
     assert s["costs"] == {
         "hub_fixed": 250.0,

@@ -410,6 +410,7 @@ def summary_dict(
         "solver": stats.solver,
         "solve_seconds": _round(stats.solve_seconds, SECONDS_DECIMALS),
         "build_seconds": _round(stats.build_seconds, SECONDS_DECIMALS),
+        "start_seconds": _round(stats.start_seconds, SECONDS_DECIMALS),
         "formulation": stats.formulation,
         "solver_options": jsonable(stats.options),
         "costs": {k: _round(sol.costs[k], MONEY_DECIMALS) for k in cost_keys},
