@@ -43,7 +43,7 @@ import highspy
 import numpy as np
 import pulp
 
-from hubnet._highs import column_lp, quiet_highs, use_threads
+from hubnet._highs import pass_columns, quiet_highs, use_threads
 from hubnet.config import HubModelParams, SolverParams
 from hubnet.data import NetworkData
 from hubnet.heuristics import polish_multiple
@@ -142,10 +142,9 @@ def _origin_cut(
     start = np.searchsorted(cols, np.arange(n_col + 1)).astype(np.int32)
     rhs = np.concatenate([[1.0], np.zeros(q), w[dests]])
 
-    lp = column_lp(cost, (np.zeros(n_col), upper), (rhs, rhs), (start, rows, vals))
     h = quiet_highs(threads)
     h.setOptionValue("presolve", _SUB_PRESOLVE)
-    h.passModel(lp)
+    pass_columns(h, cost, (np.zeros(n_col), upper), (rhs, rhs), (start, rows, vals))
     h.run()
     duals = np.asarray(h.getSolution().row_dual)
     value = float(h.getInfo().objective_function_value)

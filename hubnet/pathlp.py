@@ -35,7 +35,7 @@ from dataclasses import dataclass, field
 import highspy
 import numpy as np
 
-from hubnet._highs import column_lp, quiet_highs
+from hubnet._highs import pass_columns, quiet_highs
 from hubnet.config import HubModelParams
 from hubnet.data import NetworkData
 from hubnet.model import allocation_costs
@@ -206,15 +206,11 @@ def solve_path_relaxation(
         if data.sites[k].hub_status == "open":
             col_lo[xcol(np.array(k), np.array(a))] = 1.0
 
-    lp = column_lp(cost, (col_lo, col_hi), (row_lo, row_hi), (start, row, val))
     h = quiet_highs(threads)
     if time_limit_s is not None:
         h.setOptionValue("time_limit", max(float(time_limit_s), 0.01))
-    if integer:
-        lp.integrality_ = [highspy.HighsVarType.kInteger] * n_x + [
-            highspy.HighsVarType.kContinuous
-        ] * n_u
-    h.passModel(lp)
+    kinds = np.arange(n_col) < n_x if integer else None
+    pass_columns(h, cost, (col_lo, col_hi), (row_lo, row_hi), (start, row, val), kinds)
     if integer:
         h.setOptionValue("mip_rel_gap", float(gap))
     build_seconds = time.perf_counter() - t0

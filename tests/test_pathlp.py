@@ -155,3 +155,24 @@ def test_published_optima_through_both_routes() -> None:
     relaxed = solve_path_relaxation(data, d, ap_params("single", 3))
     assert relaxed is not None and not relaxed.integral
     assert relaxed.objective <= 136008.13
+
+
+def test_pass_columns_gives_highs_the_lp_as_written() -> None:
+    # Worked by hand: min x + 2y s.t. x + y = 1.5, 0 <= x, y <= 1 has
+    # x = 1, y = 0.5, cost 2.0; with y integer, y = 0 would need x = 1.5 > 1,
+    # so y = 1, x = 0.5, cost 2.5.
+    from hubnet._highs import pass_columns, quiet_highs
+
+    cost = np.array([1.0, 2.0])
+    bounds = (np.zeros(2), np.ones(2))
+    rows = (np.array([1.5]), np.array([1.5]))
+    matrix = (np.array([0, 1, 2], dtype=np.int32), np.array([0, 0]), np.array([1.0, 1.0]))
+    for integer, want_x, want_cost in (
+        (None, [1.0, 0.5], 2.0),
+        (np.array([0, 1]), [0.5, 1.0], 2.5),
+    ):
+        h = quiet_highs(1)
+        pass_columns(h, cost, bounds, rows, matrix, integer)
+        h.run()
+        assert list(np.round(h.getSolution().col_value, 9)) == want_x
+        assert h.getInfo().objective_function_value == pytest.approx(want_cost)
