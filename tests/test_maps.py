@@ -188,6 +188,10 @@ def test_vehicle_class_column_colours_lines_by_class(run_dir: Path, tmp_path: Pa
     assert trunks > 0 and page.count('"className": "hubnet-casing"') == trunks
     plain = (run_dir / "map.html").read_text(encoding="utf-8")  # coloured by tier
     assert "hubnet-casing" not in plain
+    # And feeder legs are drawn lighter than trunks (one line per leg).
+    feeders = int((legs["tier"] == "feeder").sum())
+    assert feeders > 0 and page.count('"opacity": 0.6,') == feeders
+    assert '"opacity": 0.6,' not in plain
 
 
 def test_planar_sites_draw_without_tiles(run_dir: Path, tmp_path: Path) -> None:

@@ -106,8 +106,13 @@ DIRECT_DASH = "6 5"
 #: On maps coloured by vehicle class, trunk legs are drawn over a dark
 #: casing this many pixels wider, so the fast tier stands out from the
 #: feeders whatever vehicles run on it.
-TRUNK_CASING_PX = 2.0
+TRUNK_CASING_PX = 3.0
 TRUNK_CASING_COLOUR = "#202124"
+TRUNK_CASING_OPACITY = 0.85
+#: On those maps feeder legs are drawn lighter, so that at a whole-country
+#: zoom the cased trunks read as the network's spine (a new-user trial found
+#: the two tiers hard to tell apart when one class runs both).
+FEEDER_OPACITY_BY_CLASS = 0.6
 #: Radius in pixels of a terminal, and of a hub of no and of the largest throughput.
 TERMINAL_RADIUS_PX = 4.5
 HUB_MIN_RADIUS_PX = 7.0
@@ -790,7 +795,7 @@ def build_map(run: RunData, *, tiles: str = DEFAULT_TILES, compact: bool = False
                     path,
                     color=TRUNK_CASING_COLOUR,
                     weight=weight + TRUNK_CASING_PX,
-                    opacity=0.6,
+                    opacity=TRUNK_CASING_OPACITY,
                     class_name="hubnet-casing",
                 )
                 casing.options["pane"] = "hubnetLegs"
@@ -800,7 +805,10 @@ def build_map(run: RunData, *, tiles: str = DEFAULT_TILES, compact: bool = False
                 path,
                 color=colour,
                 weight=weight,
-                opacity=1.0 if cased else 0.85,  # over a casing: keep the class colour true
+                # Over a casing: keep the class colour true.
+                opacity=1.0
+                if cased
+                else (FEEDER_OPACITY_BY_CLASS if class_colours and tier == "feeder" else 0.85),
                 dash_array=EMPTY_DASH if back else (DIRECT_DASH if tier == "direct" else None),
                 class_name=css,
             )
