@@ -169,17 +169,25 @@ def _origin_cut(
 class _CutCopy:
     """The master's cuts as arrays, to value many hub sets at once."""
 
-    def __init__(self, n_senders: int) -> None:
+    #: Most (cuts x hub sets) values computed at once, to bound memory.
+    CHUNK = 2_000_000
+
+    def __init__(self, n_senders: int, q: int) -> None:
         self.n_senders = n_senders
-        self.origin: list[int] = []
-        self.const: list[float] = []
-        self.coef: list[np.ndarray] = []
+        self.n = 0
+        self.origin = np.zeros(64, dtype=np.int64)
+        self.const = np.zeros(64)
+        self.coef = np.zeros((64, q))
 
     def add(self, pos_i: int, const: float, coef: np.ndarray) -> None:
-        """Keep ``theta[pos_i] >= const - coef @ y``."""
-        self.origin.append(pos_i)
-        self.const.append(const)
-        self.coef.append(coef)
+        """Keep ``theta[pos_i] >= const - coef @ y`` (currency per day)."""
+        if self.n == len(self.const):  # grow by doubling, not a copy per cut
+            self.origin = np.concatenate([self.origin, np.zeros_like(self.origin)])
+            self.const = np.concatenate([self.const, np.zeros_like(self.const)])
+            self.coef = np.vstack([self.coef, np.zeros_like(self.coef)])
+        self.origin[self.n], self.const[self.n] = pos_i, const
+        self.coef[self.n] = coef
+        self.n += 1
 
     def thetas(self, hub_sets: np.ndarray) -> np.ndarray:
         """Least ``theta`` the cuts allow per origin at each hub vector.
@@ -187,9 +195,14 @@ class _CutCopy:
         ``hub_sets`` is ``(m, q)``; returns ``(m, senders)``, currency per day.
         """
         out = np.zeros((self.n_senders, len(hub_sets)))
-        if self.origin:
-            values = np.asarray(self.const)[:, None] - np.vstack(self.coef) @ hub_sets.T
-            np.maximum.at(out, np.asarray(self.origin), values)
+        if self.n == 0:
+            return out.T
+        origin, const, coef = self.origin[: self.n], self.const[: self.n], self.coef[: self.n]
+        step = max(1, self.CHUNK // self.n)
+        for lo in range(0, len(hub_sets), step):
+            part = hub_sets[lo : lo + step]
+            values = const[:, None] - coef @ part.T
+            np.maximum.at(out[:, lo : lo + step], origin, values)
         return out.T
 
 
@@ -289,10 +302,11 @@ class _Master:
 
         With ``below`` (currency per day; HiGHS, integer phase), the solve
         stops at the first hub set whose master value is under it instead
-        of proving the master's optimum: that hub set is cut next, and a
-        master with no hub set under ``below`` comes back infeasible, which
-        proves that no plan is cheaper. The bound reported is then the
-        master's dual bound when it stopped.
+        of proving the master's optimum: that hub set is cut next. When no
+        hub set is under ``below``, HiGHS 1.16 says "infeasible" or, more
+        often, "optimal" with some hub set at or above it (not the
+        master's optimum); either proves that no plan is cheaper. The bound
+        reported is the master's dual bound when it stopped.
         """
         limit = None if time_left is None else max(1.0, time_left)
         gap = self.opts.gap / 10
@@ -430,7 +444,7 @@ def solve_multiple_benders(
 
     senders_list = list(theta)
     master = _Master(prob, y, [theta[i] for i in senders_list], opts)
-    copy = _CutCopy(len(senders_list))
+    copy = _CutCopy(len(senders_list), q)
     n_cuts = 0
 
     def add_cuts(
@@ -479,7 +493,7 @@ def solve_multiple_benders(
         seen = {tuple(np.nonzero(y0 > 0.5)[0])}
         queue = [y0]
         n_cut, cheapest, cheapest_hubs = 0, np.inf, None
-        while queue and n_cut < _NEIGHBOUR_CUTS:
+        while queue and n_cut < _NEIGHBOUR_CUTS and not out_of_time():
             near = _moves(queue.pop(0), can_close, can_open, params.hubs is not None)
             keys = [tuple(np.nonzero(row > 0.5)[0]) for row in near]
             fresh = [r for r, key in enumerate(keys) if key not in seen]
@@ -489,7 +503,7 @@ def solve_multiple_benders(
             th = copy.thetas(near)
             value = th.sum(axis=1) + near @ costs.fixed
             for r in np.argsort(value):
-                if value[r] >= below or n_cut >= _NEIGHBOUR_CUTS:
+                if value[r] >= below or n_cut >= _NEIGHBOUR_CUTS or out_of_time():
                     break
                 key = tuple(np.nonzero(near[r] > 0.5)[0])
                 seen.add(key)
@@ -593,11 +607,15 @@ def solve_multiple_benders(
         if below is not None:
             below -= 0.5 * opts.gap * abs(below)
         res = master.solve(time_left(), below)
-        if res.infeasible and below is not None:
+        # What a bound from a solve under the cutoff is worth: HiGHS may
+        # have pruned hub sets between the cutoff and the plan in hand, with
+        # its own gap (a tenth of ours) on top, so it holds up to this.
+        cap = np.inf if below is None else below - opts.gap / 10 * abs(below)
+        if below is not None and (res.infeasible or (res.proven and res.ok and res.value >= below)):
             # No hub set is under the cutoff: none beats the plan in hand by
-            # more than the gap. The master's own gap (a tenth of ours) may
-            # have pruned that close to the cutoff, hence the margin.
-            bound = max(bound, below * (1 - opts.gap / 10))
+            # more than the gap. HiGHS 1.16 says so as "infeasible" or, more
+            # often, as "optimal" with a hub set at or above the cutoff.
+            bound = max(bound, cap)
             status = "optimal"
             break
         if res.infeasible and fixed:
@@ -611,9 +629,6 @@ def solve_multiple_benders(
         if not res.ok:
             break
         if np.isfinite(res.bound):
-            # Under a cutoff, HiGHS may have pruned hub sets between the
-            # cutoff and the plan in hand: its bound holds up to the cutoff.
-            cap = np.inf if below is None else below * (1 - opts.gap / 10)
             bound = max(bound, min(res.bound, cap))
         if fixed or below is not None:
             # The master bounds only the plans cheaper than the best one.
@@ -660,7 +675,7 @@ def solve_multiple_benders(
             # The master prices this hub set exactly already, so its value is
             # both a bound and the plan's cost: nothing is left to prove.
             if res.proven:
-                bound = max(bound, res.value * (1 - opts.gap / 10))
+                bound = max(bound, min(res.value * (1 - opts.gap / 10), cap))
                 if best_cost - bound <= opts.gap * abs(best_cost):
                     status = "optimal"
             break

@@ -371,11 +371,13 @@ def shown_path(path: Path) -> str:
     (``demo_regions/iberia/demand.csv``), else the absolute path, so that
     a user with several scenarios can tell which file is meant.
     """
-    full = path.resolve()
+    # abspath, not resolve(): a symlinked file keeps the name the user gave.
+    full = os.path.abspath(path)
     try:
-        return str(full.relative_to(Path.cwd().resolve()))
-    except (ValueError, OSError):
-        return str(full)
+        rel = os.path.relpath(full, os.getcwd())
+    except (ValueError, OSError):  # another drive on Windows; no working folder
+        return full
+    return full if rel == os.pardir or rel.startswith(os.pardir + os.sep) else rel
 
 
 def _read(

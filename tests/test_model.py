@@ -289,9 +289,11 @@ def test_benders_neighbour_moves_and_cut_values() -> None:
     free = _moves(y0, can_close, can_open, swaps_only=False)
     assert {tuple(np.nonzero(r)[0]) for r in free} == {(1, 2), (2, 3), (0, 1, 2), (0, 2, 3), (2,)}
     rng = np.random.default_rng(7)
-    copy = _CutCopy(3)
+    copy = _CutCopy(3, 5)
+    copy.CHUNK = 150  # several chunks of hub sets, as on large networks
+    # 100 cuts: more than the arrays' first size, so they grow.
     cuts = [
-        (int(rng.integers(3)), float(rng.uniform(0, 50)), rng.uniform(0, 20, 5)) for _ in range(12)
+        (int(rng.integers(3)), float(rng.uniform(0, 50)), rng.uniform(0, 20, 5)) for _ in range(100)
     ]
     for origin, const, coef in cuts:
         copy.add(origin, const, coef)
@@ -319,3 +321,57 @@ def test_the_starting_search_has_its_own_seconds() -> None:
     assert abs(sol.costs["total"] - 148048.30) <= 0.005
     assert st.start_seconds > 0.0
     assert st.start_seconds + st.build_seconds + st.solve_seconds <= wall
+
+
+def test_an_origin_with_a_tiny_volume_still_solves() -> None:
+    # HiGHS drops matrix entries under 1e-9 with a warning; the Benders
+    # subproblem of an origin sending 1e-10 units must still solve (it
+    # raised before). Reference: tests/bruteforce.py enumeration.
+    import dataclasses
+
+    from hubnet.benders import solve_multiple_benders
+
+    data, xy, _ = _random_network(3, n=8)
+    demand = [m for m in data.demand if m.origin != "S0"] + [Demand("S0", "S1", 1e-10)]
+    data = dataclasses.replace(data, demand=tuple(demand))
+    d = np.sqrt(((xy[:, None] - xy[None]) ** 2).sum(-1))
+    params = HubModelParams(
+        allocation="multiple",
+        hubs=2,
+        collection_factor=1.0,
+        transfer_factor=0.6,
+        distribution_factor=1.2,
+        cost_per_unit_km=0.5,
+    )
+    fixed = np.array([s.hub_fixed_cost for s in data.sites])
+    handling = np.array([s.handling_cost for s in data.sites])
+    cand = [k for k, s in enumerate(data.sites) if s.is_candidate]
+    want, _ = brute_force(
+        d, data.flow_matrix(), allocation="multiple", p=2, rate=0.5, alpha=0.6, delta=1.2,
+        fixed=fixed, handling=handling, candidates=cand,
+    )  # fmt: skip
+    _, stats = solve_multiple_benders(data, d, params, SolverParams(name="highs"), None, print)
+    assert stats.status == "optimal"
+    assert stats.objective == pytest.approx(want, rel=1e-7)
+
+
+def test_a_warm_start_that_does_not_fit_is_searched_past() -> None:
+    # A start of 4 hubs for a 3-hub scenario must not become the plan: the
+    # run searches instead and reaches the published AP n = 20, p = 3
+    # multiple-allocation optimum (148048.30, hubs 6 12 14;
+    # published_optima.csv, Ernst and Krishnamoorthy 1998).
+    data = ap_network(20)
+    ids = [s.id for s in data.sites]
+    said: list[str] = []
+    sol = solve_network(
+        data,
+        euclid(data),
+        ap_params("multiple", 3),
+        SolverParams(name="highs"),
+        progress=said.append,
+        start_hubs=[ids[5], ids[11], ids[13], ids[0]],
+    )
+    assert any("do not fit this scenario (4 hubs, the scenario asks for 3)" in m for m in said)
+    assert sol.stats.status == "optimal" and len(sol.hubs) == 3
+    assert abs(sol.costs["total"] - 148048.30) <= 0.005
+    assert sol.stats.best_bound is not None and sol.stats.best_bound <= sol.costs["total"]
