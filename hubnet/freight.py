@@ -56,7 +56,7 @@ from hubnet.emissions import load_fuels
 from hubnet.errors import InfeasibleError, InputError, NoSolutionError, Problem, SolverError
 from hubnet.fleet import TIERS, FreightParams, Tier, VehicleClass
 from hubnet.hours import load_rules, time_legs
-from hubnet.model import HubModel, check_plan_possible
+from hubnet.model import HubModel, check_plan_possible, start_misfit
 from hubnet.solution import Leg, Route, Solution, SolveStats, hub_records
 
 #: Transit times within this many hours of the allowance count as on time.
@@ -1405,7 +1405,11 @@ def solve_freight(
             raise InputError(
                 Problem("warm start", None, "hubs", f"unknown hub ids {', '.join(unknown)}")
             )
-        given = [data.index(h) for h in start_hubs]
+        misfit = start_misfit(data, params, start_hubs)
+        if misfit is not None:
+            say(f"the starting hubs given do not fit this scenario ({misfit}): searching instead")
+        else:
+            given = [data.index(h) for h in start_hubs]
     start = starting_freight_plan(data, st, params, fp, max_seconds=20.0, hubs_given=given)
     if start is not None and given is None:
         budget = min(120.0, 0.2 * opts.time_limit_s) if opts.time_limit_s else 120.0

@@ -24,6 +24,7 @@ d[l, j]``; handling ``handling[k]`` at every hub a unit passes; fixed cost
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -322,3 +323,30 @@ def _multiple_allocation(
                     f"deliver_open_{i}_{m}_{j}",
                 )
     return HubModel(prob, "multiple-allocation flow (EK98)", hub, {}, cand)
+
+
+def start_misfit(
+    data: NetworkData, params: HubModelParams, start_hubs: Sequence[str]
+) -> str | None:
+    """Why a warm start's hub set is not a plan of this scenario, or ``None``.
+
+    ``start_hubs`` are site ids the network has (checked by the caller).
+
+    A start from another scenario (last night's plan after the hub count or
+    a hub's status changed) would otherwise be taken as the plan to beat,
+    and a plan the scenario does not allow could be reported.
+    """
+    given = {data.index(h) for h in start_hubs}
+    if not given:
+        return "no hubs"
+    if params.hubs is not None and len(given) != params.hubs:
+        return f"{len(given)} hubs, the scenario asks for {params.hubs}"
+    barred = sorted(data.sites[k].id for k in given if not data.sites[k].is_candidate)
+    if barred:
+        return f"{', '.join(barred)} may not be a hub"
+    forced = sorted(
+        s.id for k, s in enumerate(data.sites) if s.hub_status == "open" and k not in given
+    )
+    if forced:
+        return f"forced-open hub {', '.join(forced)} missing"
+    return None

@@ -27,7 +27,7 @@ from hubnet.config import HubModelParams, SolverName, SolverParams
 from hubnet.data import NetworkData
 from hubnet.errors import InfeasibleError, InputError, NoSolutionError, Problem, SolverError
 from hubnet.heuristics import allocate_to_hubs, single_allocation_cost, starting_plan
-from hubnet.model import HubModel, build_model, check_plan_possible
+from hubnet.model import HubModel, build_model, check_plan_possible, start_misfit
 from hubnet.pathlp import MAX_COLUMNS as PATH_MAX_COLUMNS
 from hubnet.pathlp import (
     PathRelaxation,
@@ -519,32 +519,6 @@ def _check_start_hubs(data: NetworkData, start_hubs: Sequence[str] | None) -> No
         )
 
 
-def _start_misfit(
-    data: NetworkData, params: HubModelParams, start_hubs: Sequence[str]
-) -> str | None:
-    """Why a warm start's hub set is not a plan of this scenario, or ``None``.
-
-    A start from another scenario (last night's plan after the hub count or
-    a hub's status changed) would otherwise be taken as the plan to beat,
-    and a plan the scenario does not allow could be reported.
-    """
-    _check_start_hubs(data, start_hubs)
-    given = {data.index(h) for h in start_hubs}
-    if not given:
-        return "no hubs"
-    if params.hubs is not None and len(given) != params.hubs:
-        return f"{len(given)} hubs, the scenario asks for {params.hubs}"
-    barred = sorted(data.sites[k].id for k in given if not data.sites[k].is_candidate)
-    if barred:
-        return f"{', '.join(barred)} may not be a hub"
-    forced = sorted(
-        s.id for k, s in enumerate(data.sites) if s.hub_status == "open" and k not in given
-    )
-    if forced:
-        return f"forced-open hub {', '.join(forced)} missing"
-    return None
-
-
 #: Share of the run's time limit the multiple-allocation starting search may use.
 START_SHARE = 0.25
 
@@ -581,7 +555,9 @@ def _start(
     allocation) and the plan's cost, currency per day (``nan`` where not
     priced: given hubs under multiple allocation, or no allocation found).
     """
-    misfit = None if start_hubs is None else _start_misfit(data, params, start_hubs)
+    if start_hubs is not None:
+        _check_start_hubs(data, start_hubs)
+    misfit = None if start_hubs is None else start_misfit(data, params, start_hubs)
     if misfit is not None:
         progress(f"the starting hubs given do not fit this scenario ({misfit}): searching instead")
         start_hubs = None

@@ -607,3 +607,24 @@ def test_a_mixed_leg_is_split_by_capacity_by_hand() -> None:
     assert h.loc["feeder", "avg_load"] == pytest.approx(20.0)  # 40 units on 2 runs
     assert h.loc["feeder", "avg_speed_kmh"] == pytest.approx(100.0)  # 200 vehicle-km in 2 h
     assert h.loc["feeder", "share_of_time"] == pytest.approx(0.5)  # 40 x 1 h of 40 x 2 h
+
+
+def test_a_freight_warm_start_that_does_not_fit_is_searched_past(tmp_path: Path) -> None:
+    # Madrid and Valencia are forced open in this network (freightdata.py):
+    # a start of Madrid alone is not a plan of it. The run says so, searches
+    # instead, and ends where the run without a start ends.
+    from freightdata import network, write_inputs
+
+    from hubnet.distances import distance_matrix
+    from hubnet.freight import solve_freight
+
+    config = load_config(write_inputs(tmp_path / "inputs"))
+    data = network()
+    dm = distance_matrix(data, config.distances)
+    said: list[str] = []
+    args = (data, dm, config.model, config.freight, config.solver)
+    with_start = solve_freight(*args, progress=said.append, start_hubs=["MAD"])
+    plain = solve_freight(*args)
+    assert any("do not fit this scenario (forced-open hub VAL missing)" in m for m in said), said
+    assert set(with_start.hub_ids) == {"MAD", "VAL"}
+    assert with_start.costs["total"] == pytest.approx(plain.costs["total"], rel=1e-9)
