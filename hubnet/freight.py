@@ -56,7 +56,7 @@ from hubnet.emissions import load_fuels
 from hubnet.errors import InfeasibleError, InputError, NoSolutionError, Problem, SolverError
 from hubnet.fleet import TIERS, FreightParams, Tier, VehicleClass
 from hubnet.hours import load_rules, time_legs
-from hubnet.model import HubModel, check_plan_possible, start_misfit
+from hubnet.model import HubModel, check_plan_possible, check_start_hubs, start_misfit
 from hubnet.solution import Leg, Route, Solution, SolveStats, hub_records
 
 #: Transit times within this many hours of the allowance count as on time.
@@ -1400,11 +1400,7 @@ def solve_freight(
     t1 = time.perf_counter()
     given = None
     if start_hubs is not None:
-        unknown = [h for h in start_hubs if h not in data.ids]
-        if unknown:
-            raise InputError(
-                Problem("warm start", None, "hubs", f"unknown hub ids {', '.join(unknown)}")
-            )
+        check_start_hubs(data, start_hubs)
         misfit = start_misfit(data, params, start_hubs)
         if misfit is not None:
             say(f"the starting hubs given do not fit this scenario ({misfit}): searching instead")

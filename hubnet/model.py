@@ -325,12 +325,21 @@ def _multiple_allocation(
     return HubModel(prob, "multiple-allocation flow (EK98)", hub, {}, cand)
 
 
+def check_start_hubs(data: NetworkData, start_hubs: Sequence[str] | None) -> None:
+    """Refuse a warm start naming sites the network does not have."""
+    unknown = [h for h in start_hubs or () if h not in data.ids]
+    if unknown:
+        raise InputError(
+            Problem("warm start", None, "hubs", f"unknown hub ids {', '.join(unknown)}")
+        )
+
+
 def start_misfit(
     data: NetworkData, params: HubModelParams, start_hubs: Sequence[str]
 ) -> str | None:
     """Why a warm start's hub set is not a plan of this scenario, or ``None``.
 
-    ``start_hubs`` are site ids the network has (checked by the caller).
+    ``start_hubs`` are site ids the network has (:func:`check_start_hubs`).
 
     A start from another scenario (last night's plan after the hub count or
     a hub's status changed) would otherwise be taken as the plan to beat,

@@ -25,9 +25,15 @@ from hubnet._highs import silence_highs_banner, use_threads
 from hubnet.benders import solve_multiple_benders
 from hubnet.config import HubModelParams, SolverName, SolverParams
 from hubnet.data import NetworkData
-from hubnet.errors import InfeasibleError, InputError, NoSolutionError, Problem, SolverError
+from hubnet.errors import InfeasibleError, NoSolutionError, SolverError
 from hubnet.heuristics import allocate_to_hubs, single_allocation_cost, starting_plan
-from hubnet.model import HubModel, build_model, check_plan_possible, start_misfit
+from hubnet.model import (
+    HubModel,
+    build_model,
+    check_plan_possible,
+    check_start_hubs,
+    start_misfit,
+)
 from hubnet.pathlp import MAX_COLUMNS as PATH_MAX_COLUMNS
 from hubnet.pathlp import (
     PathRelaxation,
@@ -327,7 +333,7 @@ def solve_network(
     requested = opts.name
     opts = dataclasses.replace(opts, name=pick_solver(opts.name, params.allocation))
     check_plan_possible(data, params)
-    _check_start_hubs(data, start_hubs)
+    check_start_hubs(data, start_hubs)
     relaxed: PathRelaxation | None = None
     if _path_relaxation_first(data, params, requested):
         proven, _spent, relaxed = _solve_by_path_relaxation(
@@ -510,15 +516,6 @@ def _solve_by_path_relaxation(
     return sol, spent, relaxed
 
 
-def _check_start_hubs(data: NetworkData, start_hubs: Sequence[str] | None) -> None:
-    """Refuse a warm start naming sites the network does not have."""
-    unknown = [h for h in start_hubs or () if h not in data.ids]
-    if unknown:
-        raise InputError(
-            Problem("warm start", None, "hubs", f"unknown hub ids {', '.join(unknown)}")
-        )
-
-
 #: Share of the run's time limit the multiple-allocation starting search may use.
 START_SHARE = 0.25
 
@@ -555,14 +552,11 @@ def _start(
     allocation) and the plan's cost, currency per day (``nan`` where not
     priced: given hubs under multiple allocation, or no allocation found).
     """
-    if start_hubs is not None:
-        _check_start_hubs(data, start_hubs)
     misfit = None if start_hubs is None else start_misfit(data, params, start_hubs)
     if misfit is not None:
         progress(f"the starting hubs given do not fit this scenario ({misfit}): searching instead")
         start_hubs = None
     if start_hubs is not None:
-        _check_start_hubs(data, start_hubs)
         hubs = sorted(data.index(h) for h in start_hubs)
         assign = None
         cost = float("nan")

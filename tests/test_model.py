@@ -114,6 +114,34 @@ def _random_network(seed: int, n: int = 6) -> tuple[NetworkData, np.ndarray, dic
     return data, xy, extra
 
 
+def _multiple_and_enumerated(
+    data: NetworkData, d: np.ndarray, p: int | None
+) -> tuple[HubModelParams, float]:
+    """Multiple-allocation parameters for a random network and its optimum
+    by tests/bruteforce.py (every hub set tried)."""
+    params = HubModelParams(
+        allocation="multiple",
+        hubs=p,
+        collection_factor=1.0,
+        transfer_factor=0.6,
+        distribution_factor=1.2,
+        cost_per_unit_km=0.5,
+    )
+    want, _ = brute_force(
+        d,
+        data.flow_matrix(),
+        allocation="multiple",
+        p=p,
+        rate=0.5,
+        alpha=0.6,
+        delta=1.2,
+        fixed=np.array([s.hub_fixed_cost for s in data.sites]),
+        handling=np.array([s.handling_cost for s in data.sites]),
+        candidates=[k for k, s in enumerate(data.sites) if s.is_candidate],
+    )
+    return params, want
+
+
 @pytest.mark.parametrize("seed", range(6))
 @pytest.mark.parametrize(
     ("allocation", "p", "capacitated"),
@@ -240,26 +268,7 @@ def test_benders_from_a_poor_start_reaches_the_enumerated_optimum(seed: int, p: 
 
     data, xy, extra = _random_network(seed, n=9)
     d = np.sqrt(((xy[:, None] - xy[None]) ** 2).sum(-1))
-    params = HubModelParams(
-        allocation="multiple",
-        hubs=p,
-        collection_factor=1.0,
-        transfer_factor=0.6,
-        distribution_factor=1.2,
-        cost_per_unit_km=0.5,
-    )
-    want, _ = brute_force(
-        d,
-        data.flow_matrix(),
-        allocation="multiple",
-        p=p,
-        rate=0.5,
-        alpha=0.6,
-        delta=1.2,
-        fixed=extra["fixed"],  # type: ignore[arg-type]
-        handling=extra["handling"],  # type: ignore[arg-type]
-        candidates=extra["candidates"],  # type: ignore[arg-type]
-    )
+    params, want = _multiple_and_enumerated(data, d, p)
     w = data.flow_matrix()
     cand: list[int] = extra["candidates"]  # type: ignore[assignment]
     poor = sorted(cand, key=lambda k: w[k].sum() + w[:, k].sum())[: p or 4]
@@ -335,21 +344,7 @@ def test_an_origin_with_a_tiny_volume_still_solves() -> None:
     demand = [m for m in data.demand if m.origin != "S0"] + [Demand("S0", "S1", 1e-10)]
     data = dataclasses.replace(data, demand=tuple(demand))
     d = np.sqrt(((xy[:, None] - xy[None]) ** 2).sum(-1))
-    params = HubModelParams(
-        allocation="multiple",
-        hubs=2,
-        collection_factor=1.0,
-        transfer_factor=0.6,
-        distribution_factor=1.2,
-        cost_per_unit_km=0.5,
-    )
-    fixed = np.array([s.hub_fixed_cost for s in data.sites])
-    handling = np.array([s.handling_cost for s in data.sites])
-    cand = [k for k, s in enumerate(data.sites) if s.is_candidate]
-    want, _ = brute_force(
-        d, data.flow_matrix(), allocation="multiple", p=2, rate=0.5, alpha=0.6, delta=1.2,
-        fixed=fixed, handling=handling, candidates=cand,
-    )  # fmt: skip
+    params, want = _multiple_and_enumerated(data, d, 2)
     _, stats = solve_multiple_benders(data, d, params, SolverParams(name="highs"), None, print)
     assert stats.status == "optimal"
     assert stats.objective == pytest.approx(want, rel=1e-7)
