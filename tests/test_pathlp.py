@@ -16,7 +16,12 @@ from bruteforce import brute_force
 from hubnet.config import HubModelParams, SolverParams
 from hubnet.data import Demand, NetworkData, Site
 from hubnet.heuristics import single_allocation_cost
-from hubnet.pathlp import fixable, relaxation_columns, solve_path_relaxation
+from hubnet.pathlp import (
+    fixable,
+    relaxation_columns,
+    satisfies_triangle,
+    solve_path_relaxation,
+)
 from hubnet.solve import solve_network
 
 PATH = "single-allocation path relaxation (integral, so optimal)"
@@ -49,8 +54,31 @@ def _network(seed: int, n: int = 7) -> tuple[NetworkData, np.ndarray, np.ndarray
     return NetworkData(sites, demand, coordinates="planar"), d, fixed, handling
 
 
+def _single_optimum(
+    data: NetworkData,
+    d: np.ndarray,
+    fixed: np.ndarray,
+    handling: np.ndarray,
+    *,
+    p: int,
+    alpha: float,
+) -> float:
+    """Enumerated single-allocation optimum (tests/bruteforce.py), unit rates."""
+    want, _ = brute_force(
+        d,
+        data.flow_matrix(),
+        allocation="single",
+        p=p,
+        alpha=alpha,
+        fixed=fixed,
+        handling=handling,
+    )
+    return want
+
+
+@pytest.mark.parametrize("form", ["flow", "transport"])
 @pytest.mark.parametrize("p", [None, 2, 3])
-def test_relaxation_bounds_the_optimum_and_is_it_when_integral(p: int | None) -> None:
+def test_relaxation_bounds_the_optimum_and_is_it_when_integral(p: int | None, form: str) -> None:
     integral = 0
     for seed in range(8):
         data, d, fixed, handling = _network(seed)
@@ -76,9 +104,13 @@ def test_relaxation_bounds_the_optimum_and_is_it_when_integral(p: int | None) ->
             fixed=fixed,
             handling=handling,
         )
-        r = solve_path_relaxation(data, d, params)
-        assert r is not None
-        assert r.columns == relaxation_columns(data)
+        r = solve_path_relaxation(data, d, params, form=form)  # type: ignore[arg-type]
+        assert r is not None and r.form == form
+        if form == "transport":
+            assert r.columns == relaxation_columns(data)
+        else:
+            pairs = (relaxation_columns(data) - data.n**2) // data.n**2
+            assert r.columns == data.n**2 + pairs * data.n * (data.n - 1)
         assert r.objective <= want * (1 + 1e-9) + 1e-6, (seed, r.objective, want)
         if r.integral:
             integral += 1
@@ -90,6 +122,53 @@ def test_relaxation_bounds_the_optimum_and_is_it_when_integral(p: int | None) ->
     assert integral >= 5
 
 
+def test_flow_form_only_where_transfers_obey_the_triangle_inequality() -> None:
+    # Planar distances are a metric, so the discounted transfers obey the
+    # triangle inequality and "auto" picks the flow form; both forms have the
+    # same optimum there. A user's matrix that breaks the inequality (one
+    # hub-to-hub distance made far longer than going round by a third site)
+    # gets the transport form, whose optimum still bounds the enumerated one
+    # (tests/bruteforce.py) and is it when integral.
+    for seed in range(3):
+        data, d, fixed, handling = _network(seed)
+        params = HubModelParams(allocation="single", hubs=2, transfer_factor=0.6)
+        auto = solve_path_relaxation(data, d, params)
+        transport = solve_path_relaxation(data, d, params, form="transport")
+        assert auto is not None and transport is not None and auto.form == "flow"
+        assert auto.objective == pytest.approx(transport.objective, rel=1e-9)
+        bent = d.copy()
+        bent[0, 1] = bent[1, 0] = 3.0 * (d[0, 2] + d[2, 1])
+        want = _single_optimum(data, bent, fixed, handling, p=2, alpha=0.6)
+        r = solve_path_relaxation(data, bent, params)
+        assert r is not None and r.form == "transport"
+        assert r.objective <= want * (1 + 1e-9)
+        if r.integral:
+            assert r.objective == pytest.approx(want, rel=1e-7)
+        sol = solve_network(data, bent, params, SolverParams())
+        assert sol.costs["total"] == pytest.approx(want, rel=1e-7)
+
+
+def test_triangle_check_against_a_plain_loop() -> None:
+    # Random costs mostly break it; discounted planar distances plus the
+    # second hub's handling never do; a plain triple loop is the reference.
+    rng = np.random.default_rng(5)
+    seen = set()
+    for k in range(60):
+        if k % 2:
+            xy = rng.uniform(0, 100, size=(5, 2))
+            hop = 0.7 * np.sqrt(((xy[:, None] - xy[None]) ** 2).sum(-1))
+            hop += rng.uniform(0, 2, size=5)[None, :]
+        else:
+            hop = rng.uniform(0, 10, size=(5, 5))
+        np.fill_diagonal(hop, 0.0)
+        plain = all(
+            hop[a, m] + hop[m, b] >= hop[a, b] for a in range(5) for m in range(5) for b in range(5)
+        )
+        assert satisfies_triangle(hop) == plain
+        seen.add(plain)
+    assert seen == {True, False}
+
+
 def test_start_pricing_and_fixing_agree_with_brute_force() -> None:
     # The cost the solver gives its starting plan (heuristics.
     # single_allocation_cost, used for reduced-cost fixing) must be the
@@ -99,15 +178,7 @@ def test_start_pricing_and_fixing_agree_with_brute_force() -> None:
     for seed in range(4):
         data, d, fixed, handling = _network(seed)
         params = HubModelParams(allocation="single", hubs=3, transfer_factor=0.7)
-        want, _ = brute_force(
-            d,
-            data.flow_matrix(),
-            allocation="single",
-            p=3,
-            alpha=0.7,
-            fixed=fixed,
-            handling=handling,
-        )
+        want = _single_optimum(data, d, fixed, handling, p=3, alpha=0.7)
         sol = solve_network(data, d, params, SolverParams(name="cbc"))
         hub_of = {t: h.id for h in sol.hubs for t in h.terminals}
         assign = np.array([data.index(hub_of[s.id]) for s in data.sites])
