@@ -334,6 +334,8 @@ def solve_network(
     opts = dataclasses.replace(opts, name=pick_solver(opts.name, params.allocation))
     check_plan_possible(data, params)
     check_start_hubs(data, start_hubs)
+    if params.hubs == 1 and not params.capacitated:
+        return _solve_one_hub(data, d, params, opts, scenario, progress)
     relaxed: PathRelaxation | None = None
     if _path_relaxation_first(data, params, requested):
         proven, _spent, relaxed = _solve_by_path_relaxation(
@@ -400,6 +402,49 @@ def solve_network(
         + f" in {stats.solve_seconds:.1f} s"
     )
     return evaluate_plan(data, d, params, hubs, assign, stats, scenario=scenario)
+
+
+def _solve_one_hub(
+    data: NetworkData,
+    d: np.ndarray,
+    params: HubModelParams,
+    opts: SolverParams,
+    scenario: str,
+    progress: Progress,
+) -> Solution:
+    """One hub, no sort capacity: price every candidate, take the cheapest.
+
+    With a single hub every unit goes origin -> hub -> destination, under
+    single and multiple allocation alike, so nothing is left to choose but
+    the hub (a forced-open one if the scenario has it): pricing each of the
+    q candidates (O(q n^2)) is the proof of optimality, no solver needed.
+    """
+    t0 = time.perf_counter()
+    forced = [k for k, s in enumerate(data.sites) if s.hub_status == "open"]
+    cand = forced or [k for k, s in enumerate(data.sites) if s.is_candidate]
+    costs = [single_allocation_cost(data, d, params, np.full(data.n, k)) for k in cand]
+    best = int(np.argmin(costs))
+    hub, cost = cand[best], float(costs[best])
+    seconds = time.perf_counter() - t0
+    stats = SolveStats(
+        solver="enumeration",
+        status="optimal",
+        objective=cost,
+        best_bound=cost,
+        gap=0.0,
+        solve_seconds=seconds,
+        build_seconds=0.0,
+        formulation="one hub: every candidate priced",
+        options={"time_limit_s": opts.time_limit_s, "gap": opts.gap, "threads": opts.threads},
+        log=(
+            f"One hub asked: each of the {len(cand)} candidate hubs priced with every site "
+            f"allocated to it; the cheapest, {data.sites[hub].id}, costs {cost:.6f} "
+            f"per day ({seconds:.3f} s).\n"
+        ),
+    )
+    progress(f"optimal: one hub, {len(cand)} candidates priced, cost {cost:,.2f}")
+    assign = np.full(data.n, hub) if params.allocation == "single" else None
+    return evaluate_plan(data, d, params, [hub], assign, stats, scenario=scenario)
 
 
 def _left(opts: SolverParams, t_run: float) -> SolverParams:

@@ -54,7 +54,7 @@ def _network(seed: int, n: int = 7) -> tuple[NetworkData, np.ndarray, np.ndarray
     return NetworkData(sites, demand, coordinates="planar"), d, fixed, handling
 
 
-def _single_optimum(
+def _enumerated(
     data: NetworkData,
     d: np.ndarray,
     fixed: np.ndarray,
@@ -62,18 +62,20 @@ def _single_optimum(
     *,
     p: int,
     alpha: float,
-) -> float:
-    """Enumerated single-allocation optimum (tests/bruteforce.py), unit rates."""
-    want, _ = brute_force(
+    allocation: str = "single",
+    forced: list[int] | None = None,
+) -> tuple[float, tuple[int, ...]]:
+    """Enumerated optimum and its hubs (tests/bruteforce.py), unit rates."""
+    return brute_force(
         d,
         data.flow_matrix(),
-        allocation="single",
+        allocation=allocation,
         p=p,
         alpha=alpha,
         fixed=fixed,
         handling=handling,
+        forced=forced,
     )
-    return want
 
 
 @pytest.mark.parametrize("form", ["flow", "transport"])
@@ -138,7 +140,7 @@ def test_flow_form_only_where_transfers_obey_the_triangle_inequality() -> None:
         assert auto.objective == pytest.approx(transport.objective, rel=1e-9)
         bent = d.copy()
         bent[0, 1] = bent[1, 0] = 3.0 * (d[0, 2] + d[2, 1])
-        want = _single_optimum(data, bent, fixed, handling, p=2, alpha=0.6)
+        want, _ = _enumerated(data, bent, fixed, handling, p=2, alpha=0.6)
         r = solve_path_relaxation(data, bent, params)
         assert r is not None and r.form == "transport"
         assert r.objective <= want * (1 + 1e-9)
@@ -178,7 +180,7 @@ def test_start_pricing_and_fixing_agree_with_brute_force() -> None:
     for seed in range(4):
         data, d, fixed, handling = _network(seed)
         params = HubModelParams(allocation="single", hubs=3, transfer_factor=0.7)
-        want = _single_optimum(data, d, fixed, handling, p=3, alpha=0.7)
+        want, _ = _enumerated(data, d, fixed, handling, p=3, alpha=0.7)
         sol = solve_network(data, d, params, SolverParams(name="cbc"))
         hub_of = {t: h.id for h in sol.hubs for t in h.terminals}
         assign = np.array([data.index(hub_of[s.id]) for s in data.sites])
@@ -247,3 +249,31 @@ def test_pass_columns_gives_highs_the_lp_as_written() -> None:
         h.run()
         assert list(np.round(h.getSolution().col_value, 9)) == want_x
         assert h.getInfo().objective_function_value == pytest.approx(want_cost)
+
+
+@pytest.mark.parametrize("allocation", ["single", "multiple"])
+def test_one_hub_is_priced_directly_and_matches_enumeration(allocation: str) -> None:
+    # One hub: every candidate priced, no solver. Reference: tests/
+    # bruteforce.py's enumeration, with fixed and handling costs, and with
+    # a forced-open hub that is not the cheapest.
+    from dataclasses import replace
+
+    for seed in range(4):
+        data, d, fixed, handling = _network(seed)
+        params = HubModelParams(allocation=allocation, hubs=1, transfer_factor=0.6)  # type: ignore[arg-type]
+        want, hubs = _enumerated(data, d, fixed, handling, p=1, alpha=0.6, allocation=allocation)
+        sol = solve_network(data, d, params, SolverParams())
+        assert sol.stats.solver == "enumeration" and sol.stats.status == "optimal"
+        assert sol.costs["total"] == pytest.approx(want, rel=1e-9)
+        assert sol.stats.objective == pytest.approx(want, rel=1e-9)
+        assert [data.index(h) for h in sol.hub_ids] == list(hubs)
+        other = (hubs[0] + 1) % data.n
+        sites = list(data.sites)
+        sites[other] = replace(sites[other], hub_status="open")
+        forced = replace(data, sites=tuple(sites))
+        want_forced, _ = _enumerated(
+            data, d, fixed, handling, p=1, alpha=0.6, allocation=allocation, forced=[other]
+        )
+        sol = solve_network(forced, d, params, SolverParams())
+        assert list(sol.hub_ids) == [data.sites[other].id]
+        assert sol.costs["total"] == pytest.approx(want_forced, rel=1e-9) and want_forced > want
