@@ -33,15 +33,20 @@ forms have the same optimum and give a plan the same cost; the flow form
 has half the rows and is solved 2-3x faster (CAB, 25 cities, 4 hubs: 1.3-3.4 s
 against 3.2-11.9 s on the machine of benchmarks/README.md).
 
-When every ``x`` comes out 0 or 1 the plan it describes is optimal. Sort
-capacities are not modelled here: capacitated problems skip this step.
+When every ``x`` comes out 0 or 1 the plan it describes is optimal;
+otherwise :func:`branch_on_path` branches on the same model in HiGHS, depth
+first, each node re-solved from its parent's basis. The relaxation lies
+within a fraction of a per cent of the optimum, so few nodes are needed
+(CAB, 20 cities, 4 hubs, transfer factor 1.0: 7 nodes, 0.5 s, where the
+flow model's MILP took 51 s). Sort capacities are not modelled here:
+capacitated problems skip this step.
 """
 
 from __future__ import annotations
 
 import time
 from dataclasses import dataclass, field
-from typing import Literal
+from typing import Any, Literal
 
 import highspy
 import numpy as np
@@ -146,6 +151,44 @@ def solve_path_relaxation(
 ) -> PathRelaxation | None:
     """Build and solve the path relaxation of a single-allocation problem.
 
+    See :func:`relax_path` (which also hands back the model, to branch on).
+    """
+    out = relax_path(data, d, params, time_limit_s=time_limit_s, threads=threads, form=form)
+    return None if out is None else out[0]
+
+
+@dataclass
+class PathModel:
+    """The path model held in HiGHS after its relaxation, to branch on.
+
+    Attributes
+    ----------
+    h
+        The ``highspy.Highs`` object, solved at the root.
+    cand
+        Matrix indices of the candidate hubs (column block order).
+    x_lo, x_hi
+        The allocation columns' bounds at the root, ``(n q,)``; column
+        ``i q + a`` is site i allocated to ``cand[a]``.
+    """
+
+    h: Any
+    cand: np.ndarray
+    x_lo: np.ndarray
+    x_hi: np.ndarray
+
+
+def relax_path(
+    data: NetworkData,
+    d: np.ndarray,
+    params: HubModelParams,
+    *,
+    time_limit_s: float | None = None,
+    threads: int | None = None,
+    form: Literal["auto", "flow", "transport"] = "auto",
+) -> tuple[PathRelaxation, PathModel] | None:
+    """Build and solve the path relaxation; return it and the model in HiGHS.
+
     Parameters
     ----------
     data
@@ -167,9 +210,10 @@ def solve_path_relaxation(
 
     Returns
     -------
-    PathRelaxation or None
-        ``None`` when the relaxation was not solved to optimality (time
-        limit, numerical trouble) or does not apply.
+    tuple or None
+        The relaxation and the model; ``None`` when the relaxation was not
+        solved to optimality (time limit, numerical trouble) or does not
+        apply.
     """
     if params.allocation != "single" or params.capacitated:
         return None
@@ -289,7 +333,7 @@ def solve_path_relaxation(
     if whole:
         assign = cand[np.argmax(x, axis=1)]
         hubs = sorted(int(k) for a, k in enumerate(cand) if x[k, a] > 0.5)
-    return PathRelaxation(
+    relaxed = PathRelaxation(
         objective,
         hubs,
         assign,
@@ -299,6 +343,160 @@ def solve_path_relaxation(
         reduced_cost=reduced,
         form=form,
     )
+    return relaxed, PathModel(h, cand, col_lo[:n_x].copy(), col_hi[:n_x].copy())
+
+
+@dataclass(frozen=True)
+class PathPlan:
+    """Outcome of branching on the path model.
+
+    Attributes
+    ----------
+    objective
+        Cost of the best plan, currency per day (``inf`` if none was found).
+    bound
+        Proven lower bound on every plan's cost, currency per day.
+    hubs, assign
+        The best plan's hubs and each site's hub (matrix indices);
+        ``assign`` is ``None`` when no plan was found.
+    proven
+        The search was finished: the plan is optimal to the gap asked.
+    out_of_time
+        The search was stopped by its time limit (not by ``max_nodes``).
+    nodes
+        Linear programs solved in the search (the root not counted).
+    seconds
+        Wall time of the search, seconds.
+    """
+
+    objective: float
+    bound: float
+    hubs: list[int]
+    assign: np.ndarray | None
+    proven: bool
+    out_of_time: bool
+    nodes: int
+    seconds: float
+
+
+#: Most nodes a branch and bound on the path model may solve before it
+#: hands over to the flow model's MILP (with its best plan as the start).
+MAX_NODES = 400
+
+
+def branch_on_path(
+    model: PathModel,
+    relaxed: PathRelaxation,
+    incumbent: tuple[float, np.ndarray] | None,
+    *,
+    gap: float = 1e-6,
+    time_limit_s: float | None = None,
+    max_nodes: int | None = None,
+) -> PathPlan:
+    """Branch and bound on the path model's allocations, depth first.
+
+    The relaxation is tight (its optimum lies within a fraction of a per
+    cent of the plan's on the classic instances), so few nodes are needed:
+    each fixes one allocation at 0 or 1 (an open/closed hub first, the most
+    fractional one; then the most fractional allocation of a site), and is
+    re-solved from its parent's basis by HiGHS's dual simplex. A node whose
+    relaxation is integral is a plan; a node whose bound is within the
+    relative ``gap`` of the best plan is cut off.
+
+    Parameters
+    ----------
+    model, relaxed
+        From :func:`relax_path`.
+    incumbent
+        A plan in hand, ``(cost, assign)``: cost per day and each site's hub
+        (matrix indices), e.g. from local search. Allocations its cost rules
+        out by reduced cost (:func:`fixable`) are left out of the search.
+    gap
+        Relative gap at which a plan counts as proven optimal.
+    time_limit_s
+        Seconds the search may take; ``None`` for no limit.
+    max_nodes
+        Nodes to solve at most (``None``: :data:`MAX_NODES`); then the
+        search stops unproven.
+    """
+    t0 = time.perf_counter()
+    if max_nodes is None:
+        max_nodes = MAX_NODES
+    h, cand = model.h, model.cand
+    q = len(cand)
+    n = len(model.x_lo) // q
+    lo, hi = model.x_lo.copy(), model.x_hi.copy()
+    best, best_assign = np.inf, None
+    if incumbent is not None and np.isfinite(incumbent[0]):
+        best, best_assign = float(incumbent[0]), np.asarray(incumbent[1])
+        out = fixable(relaxed, best)[:, cand].ravel()
+        pos = {int(k): a for a, k in enumerate(cand)}
+        keep = np.array([i * q + pos[int(k)] for i, k in enumerate(best_assign)])
+        out[keep] = False
+        hi[out] = np.minimum(hi[out], 0.0)
+    changed = np.flatnonzero(hi != model.x_hi)
+    for col in changed:
+        h.changeColBounds(int(col), float(lo[col]), float(hi[col]))
+    hub_cols = np.array([int(k) * q + a for a, k in enumerate(cand)])
+    stack: list[tuple[dict[int, float], float]] = [({}, relaxed.objective)]
+    set_before: dict[int, float] = {}
+    cut_off = np.inf  # least bound of the nodes cut off by the gap alone
+    nodes = 0
+    out_of_time = False
+
+    def cut(bound: float) -> bool:
+        return bound >= best - gap * abs(best)
+
+    while stack:
+        fix, bound = stack.pop()
+        if cut(bound):
+            cut_off = min(cut_off, bound)
+            continue
+        spent = time.perf_counter() - t0
+        out_of_time = time_limit_s is not None and spent >= time_limit_s
+        if nodes >= max_nodes or out_of_time:
+            stack.append((fix, bound))
+            break
+        for j in set_before:
+            h.changeColBounds(j, float(lo[j]), float(hi[j]))
+        for j, v in fix.items():
+            h.changeColBounds(j, v, v)
+        set_before = fix
+        if time_limit_s is not None:
+            h.setOptionValue("time_limit", max(time_limit_s - spent, 0.01))
+        h.run()
+        nodes += 1
+        status = h.getModelStatus()
+        if status == highspy.HighsModelStatus.kInfeasible:
+            continue
+        if status != highspy.HighsModelStatus.kOptimal:
+            stack.append((fix, bound))  # not solved (time limit): still open
+            out_of_time = status == highspy.HighsModelStatus.kTimeLimit
+            break
+        value = float(h.getInfo().objective_function_value)
+        if cut(value):
+            cut_off = min(cut_off, value)
+            continue
+        x = np.asarray(h.getSolution().col_value)[: n * q]
+        frac = np.minimum(np.abs(x), np.abs(1.0 - x))
+        if frac.max() <= INTEGRAL_TOL:
+            best = value
+            best_assign = cand[np.argmax(x.reshape(n, q), axis=1)]
+            continue
+        on_hubs = frac[hub_cols]
+        c = (
+            int(hub_cols[np.argmax(on_hubs)])
+            if on_hubs.max() > INTEGRAL_TOL
+            else int(frac.argmax())
+        )
+        up: tuple[dict[int, float], float] = ({**fix, c: 1.0}, value)
+        down: tuple[dict[int, float], float] = ({**fix, c: 0.0}, value)
+        # Depth first, the side nearer the relaxation's value first.
+        stack += [down, up] if x[c] >= 0.5 else [up, down]
+    bound = min([b for _, b in stack] + [cut_off, best])
+    hubs: list[int] = [] if best_assign is None else sorted({int(k) for k in best_assign})
+    seconds = time.perf_counter() - t0
+    return PathPlan(best, bound, hubs, best_assign, not stack, out_of_time, nodes, seconds)
 
 
 def fixable(relaxed: PathRelaxation, incumbent: float, *, tol: float = 1e-7) -> np.ndarray:
@@ -315,8 +513,13 @@ def fixable(relaxed: PathRelaxation, incumbent: float, *, tol: float = 1e-7) -> 
 
 __all__ = [
     "MAX_COLUMNS",
+    "MAX_NODES",
+    "PathModel",
+    "PathPlan",
     "PathRelaxation",
+    "branch_on_path",
     "fixable",
+    "relax_path",
     "relaxation_columns",
     "solve_path_relaxation",
 ]

@@ -36,10 +36,12 @@ from hubnet.model import (
 )
 from hubnet.pathlp import MAX_COLUMNS as PATH_MAX_COLUMNS
 from hubnet.pathlp import (
+    PathModel,
     PathRelaxation,
+    branch_on_path,
     fixable,
+    relax_path,
     relaxation_columns,
-    solve_path_relaxation,
 )
 from hubnet.solution import RunStatus, Solution, SolveStats, evaluate_plan
 
@@ -337,8 +339,9 @@ def solve_network(
     if params.hubs == 1 and not params.capacitated:
         return _solve_one_hub(data, d, params, opts, scenario, progress)
     relaxed: PathRelaxation | None = None
+    path_model: PathModel | None = None
     if _path_relaxation_first(data, params, requested):
-        proven, _spent, relaxed = _solve_by_path_relaxation(
+        proven, relaxed, path_model = _solve_by_path_relaxation(
             data, d, params, opts, scenario, progress
         )
         if proven is not None:
@@ -346,6 +349,14 @@ def solve_network(
     t_start = time.perf_counter()
     start = _start(data, d, params, start_hubs, progress, opts.time_limit_s)
     start_seconds = time.perf_counter() - t_start
+    if relaxed is not None and path_model is not None:
+        branched, start = _branch_on_path_model(
+            data, d, params, _left(opts, t_run), (relaxed, path_model), start, progress
+        )
+        if branched is not None:
+            return evaluate_plan(
+                data, d, params, branched[0], branched[1], branched[2], scenario=scenario
+            )
     if params.allocation == "multiple" and params.formulation in ("auto", "benders"):
         left = _left(opts, t_run)
         progress(
@@ -512,27 +523,24 @@ def _solve_by_path_relaxation(
     opts: SolverParams,
     scenario: str,
     progress: Progress,
-) -> tuple[Solution | None, float, PathRelaxation | None]:
+) -> tuple[Solution | None, PathRelaxation | None, PathModel | None]:
     """The plan, proven optimal, when the path relaxation is integral; else ``None``.
 
-    Returns the plan (or ``None``), the seconds spent and the relaxation
-    (``None`` when it was not solved).
+    Returns the plan (or ``None``), the relaxation and its model in HiGHS
+    (both ``None`` when it was not solved or cannot be trusted).
     """
-    t0 = time.perf_counter()
     progress(f"solving the path relaxation for {data.n} sites with HiGHS")
-    relaxed = solve_path_relaxation(
-        data, d, params, time_limit_s=opts.time_limit_s, threads=opts.threads
-    )
-    spent = time.perf_counter() - t0
-    if relaxed is None:
+    out = relax_path(data, d, params, time_limit_s=opts.time_limit_s, threads=opts.threads)
+    if out is None:
         progress("path relaxation not solved: solving the flow model")
-        return None, spent, None
+        return None, None, None
+    relaxed, model = out
     if not relaxed.integral:
         progress(
             f"path relaxation bound {relaxed.objective:,.2f} is not a plan "
-            f"({relaxed.solve_seconds:.1f} s): solving the flow model"
+            f"({relaxed.solve_seconds:.1f} s): branching on it"
         )
-        return None, spent, relaxed
+        return None, relaxed, model
     stats = SolveStats(
         solver="highs",
         status="optimal",
@@ -553,12 +561,75 @@ def _solve_by_path_relaxation(
     if abs(sol.costs["total"] - relaxed.objective) > 1e-6 * max(1.0, abs(relaxed.objective)):
         # The re-priced plan must cost what the relaxation says; if not, trust neither.
         progress("path relaxation and re-priced plan disagree: solving the flow model")
-        return None, spent, None
+        return None, None, None
     progress(
         f"optimal: cost {relaxed.objective:,.2f} (path relaxation integral, "
         f"{relaxed.solve_seconds:.1f} s)"
     )
-    return sol, spent, relaxed
+    return sol, relaxed, model
+
+
+def _branch_on_path_model(
+    data: NetworkData,
+    d: np.ndarray,
+    params: HubModelParams,
+    left: SolverParams,
+    path: tuple[PathRelaxation, PathModel],
+    start: tuple[list[int], np.ndarray | None, float] | None,
+    progress: Progress,
+) -> tuple[
+    tuple[list[int], np.ndarray, SolveStats] | None,
+    tuple[list[int], np.ndarray | None, float] | None,
+]:
+    """Branch and bound on the path model when its relaxation was fractional.
+
+    ``left`` holds the time left of the run (s). Returns the plan's hubs,
+    allocation and stats when the search proved it optimal or ran out of
+    time with a plan; else ``None`` (too many nodes, or its plan and its
+    re-priced cost disagree), with the best start for the flow model that
+    follows (the search's plan when cheaper than ``start``).
+    """
+    relaxed, model = path
+    incumbent = None if start is None or start[1] is None else (start[2], start[1])
+    progress("branching on the path relaxation (HiGHS, warm-started dual simplex)")
+    found = branch_on_path(model, relaxed, incumbent, gap=left.gap, time_limit_s=left.time_limit_s)
+    if found.assign is None:
+        progress(f"no plan after {found.nodes} nodes: solving the flow model")
+        return None, start
+    cost = single_allocation_cost(data, d, params, found.assign)
+    if abs(cost - found.objective) > 1e-6 * max(1.0, abs(found.objective)):
+        progress("branching and re-priced plan disagree: solving the flow model")
+        return None, start
+    better = (found.hubs, found.assign, cost)  # the start was its first incumbent
+    if not found.proven and not found.out_of_time:
+        progress(f"branching stopped after {found.nodes} nodes: solving the flow model")
+        return None, better
+    bound = min(found.bound, found.objective)
+    stats = SolveStats(
+        solver="highs",
+        status="optimal" if found.proven else "time_limit",
+        objective=found.objective,
+        best_bound=bound,
+        gap=(found.objective - bound) / max(abs(found.objective), 1e-12),
+        solve_seconds=relaxed.solve_seconds + found.seconds,
+        build_seconds=relaxed.build_seconds,
+        formulation="single-allocation path formulation, branch and bound on its relaxation",
+        options={"time_limit_s": left.time_limit_s, "gap": left.gap, "threads": left.threads},
+        log=(
+            f"HiGHS solved the linear relaxation of the single-allocation path formulation "
+            f"({relaxed.columns} columns) in {relaxed.solve_seconds:.3f} s: objective "
+            f"{relaxed.objective:.6f}, fractional. Branch and bound on it: {found.nodes} "
+            f"nodes in {found.seconds:.3f} s, best plan {found.objective:.6f}, bound "
+            f"{bound:.6f}"
+            + (" (finished)" if found.proven else " (stopped by the time limit)")
+            + ".\n"
+        ),
+    )
+    progress(
+        f"{stats.status}: cost {found.objective:,.2f}, bound {bound:,.2f} after "
+        f"{found.nodes} nodes ({found.seconds:.1f} s)"
+    )
+    return (found.hubs, found.assign, stats), better
 
 
 #: Share of the run's time limit the multiple-allocation starting search may use.

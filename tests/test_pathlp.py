@@ -213,8 +213,8 @@ def test_cbc_by_name_solves_the_flow_model() -> None:
 def test_published_optima_through_both_routes() -> None:
     # Published: AP n=10 p=2 167493.06, hubs 3 7 (1-based); p=3 136008.13,
     # hubs 3 4 7 (published_optima.csv, Ernst and Krishnamoorthy 1996). The
-    # relaxation is integral for p=2; for p=3 it is not (136007.41), so the
-    # flow model finishes the job.
+    # relaxation is integral for p=2; for p=3 it is not (136007.41), so
+    # branching on it finishes the job.
     data = ap_network(10)
     d = euclid(data)
     two = solve_network(data, d, ap_params("single", 2), SolverParams())
@@ -277,3 +277,62 @@ def test_one_hub_is_priced_directly_and_matches_enumeration(allocation: str) -> 
         sol = solve_network(forced, d, params, SolverParams())
         assert list(sol.hub_ids) == [data.sites[other].id]
         assert sol.costs["total"] == pytest.approx(want_forced, rel=1e-9) and want_forced > want
+
+
+BRANCHED = "single-allocation path formulation, branch and bound on its relaxation"
+
+
+def _fractional_cases() -> list[tuple[NetworkData, np.ndarray, HubModelParams, float]]:
+    """Random networks whose path relaxation is fractional, with their enumerated optimum.
+
+    Hub counts 2 and 3 (with fixed costs and a free hub count the relaxation
+    of these networks came out integral every time).
+    """
+    cases = []
+    for seed in range(12):
+        data, d, fixed, handling = _network(seed, n=8)
+        for p in (2, 3):
+            params = HubModelParams(allocation="single", hubs=p, transfer_factor=0.9)
+            relaxed = solve_path_relaxation(data, d, params)
+            if relaxed is not None and not relaxed.integral:
+                want, _ = _enumerated(data, d, fixed, handling, p=p, alpha=0.9)
+                cases.append((data, d, params, want))
+    return cases
+
+
+def test_branching_on_a_fractional_relaxation_reaches_the_enumerated_optimum() -> None:
+    # Reference: tests/bruteforce.py (every hub set and allocation). The
+    # search starts from hubnet's local-search plan in solve_network, and
+    # from no plan at all when called directly.
+    from hubnet.pathlp import branch_on_path, relax_path
+
+    cases = _fractional_cases()
+    assert len(cases) >= 8  # enough fractional relaxations to mean something
+    for data, d, params, want in cases:
+        sol = solve_network(data, d, params, SolverParams())
+        assert sol.stats.formulation == BRANCHED and sol.stats.status == "optimal"
+        assert sol.costs["total"] == pytest.approx(want, rel=1e-7)
+        out = relax_path(data, d, params)
+        assert out is not None
+        found = branch_on_path(out[1], out[0], None)
+        assert found.proven and found.nodes >= 1
+        assert found.objective == pytest.approx(want, rel=1e-7)
+        assert found.bound <= want * (1 + 1e-9)
+        # Stopped at once, it proves nothing and its bound is the root's.
+        out = relax_path(data, d, params)
+        assert out is not None
+        stopped = branch_on_path(out[1], out[0], None, max_nodes=0)
+        assert not stopped.proven and stopped.assign is None
+        assert stopped.bound == pytest.approx(out[0].objective) and stopped.bound <= want
+
+
+def test_node_limit_hands_over_to_the_flow_model(monkeypatch: pytest.MonkeyPatch) -> None:
+    # With no node allowed the search stops unproven and the flow model's
+    # MILP finishes: same enumerated optimum (tests/bruteforce.py).
+    import hubnet.pathlp
+
+    monkeypatch.setattr(hubnet.pathlp, "MAX_NODES", 0)
+    data, d, params, want = _fractional_cases()[0]
+    sol = solve_network(data, d, params, SolverParams())
+    assert sol.stats.formulation not in (BRANCHED, PATH) and sol.stats.status == "optimal"
+    assert sol.costs["total"] == pytest.approx(want, rel=1e-7)
