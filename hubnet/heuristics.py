@@ -6,6 +6,8 @@ even when the time limit is short. Pure numpy; deterministic.
 
 from __future__ import annotations
 
+from collections.abc import Callable
+
 import numpy as np
 
 from hubnet.config import HubModelParams
@@ -400,6 +402,10 @@ def starting_plan(
     pricer = _Pricer(data, d, params)
     cand = [k for k, s in enumerate(data.sites) if s.is_candidate]
     forced = [k for k, s in enumerate(data.sites) if s.hub_status == "open"]
+    spare = pricer.cap - pricer.out_vol  # an open hub sorts its own volume too
+    if params.capacitated:
+        # A site sending more than it can sort can never be an open hub.
+        cand = [k for k in cand if spare[k] >= 0 or k in forced]
     single = params.allocation == "single"
 
     def price(hubs: list[int]) -> tuple[float, np.ndarray | None]:
@@ -429,6 +435,8 @@ def starting_plan(
         )
         return (sorted(hubs), None, float(cost)) if np.isfinite(cost) else None
     cost, assign = price(hubs)
+    if not np.isfinite(cost) and target is None:
+        hubs, cost, assign = _open_until_allocable(hubs, cand, price, spare)
     # Swap (and, without a fixed hub count, add/drop) local search.
     for _ in range(max_rounds):
         if time.perf_counter() > t_end:
@@ -442,8 +450,9 @@ def starting_plan(
             moves += [hubs + [k] for k in cand if k not in hubs]
             if len(hubs) > 1:
                 moves += [[k for k in hubs if k != out] for out in hubs if out not in forced]
-        if len(moves) > 40:
-            # Rank swaps with the cheap proxy; price only the most promising exactly.
+        if len(moves) > 40 and np.isfinite(cost):
+            # Rank swaps with the cheap proxy; price only the most promising
+            # exactly (all of them while no plan fits the sort capacities).
             ranked = sorted(moves, key=proxy)[:40]
             moves = ranked
         for move in moves:
@@ -459,6 +468,34 @@ def starting_plan(
     if not np.isfinite(cost):
         return None
     return sorted(hubs), assign, float(cost)
+
+
+def _open_until_allocable(
+    hubs: list[int],
+    cand: list[int],
+    price: Callable[[list[int]], tuple[float, np.ndarray | None]],
+    spare: np.ndarray,
+) -> tuple[list[int], float, np.ndarray | None]:
+    """Open hubs until the sites can be allocated within the sort capacities.
+
+    For a free hub count: each round prices every one-hub addition exactly
+    and keeps the cheapest that fits; when none fits yet, it opens the
+    candidate with the most ``spare`` capacity (sort capacity less the
+    site's own volume, units per day) and goes on.
+    The greedy phase ranks hub sets by a capacity-blind proxy, so with
+    tight capacities its set can leave no room for every site.
+    """
+    hubs = list(hubs)
+    while len(hubs) < len(cand):
+        rest = [k for k in cand if k not in hubs]
+        priced = [(price(hubs + [k]), k) for k in rest]
+        fits = [(c, a, k) for (c, a), k in priced if np.isfinite(c)]
+        if fits:
+            c, a, k = min(fits, key=lambda f: f[0])
+            return hubs + [k], c, a
+        hubs.append(max(rest, key=lambda k: spare[k]))
+    cost, assign = price(hubs)
+    return hubs, cost, assign
 
 
 def allocate_to_hubs(
