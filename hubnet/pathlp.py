@@ -311,6 +311,9 @@ def relax_path(
             col_lo[xcol(np.array(k), np.array(a))] = 1.0
 
     h = quiet_highs(threads)
+    # HiGHS's presolve costs more than it saves on this LP: CAB n = 25, p = 4,
+    # alpha 0.6 / 1.0 solved in 2.5 / 3.6 s with it, 1.4 / 2.7 s without.
+    h.setOptionValue("presolve", "off")
     if time_limit_s is not None:
         h.setOptionValue("time_limit", max(float(time_limit_s), 0.01))
     pass_columns(h, cost, (col_lo, col_hi), (row_lo, row_hi), (start, row, val))
