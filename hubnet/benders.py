@@ -337,7 +337,11 @@ class _Master:
             self.highs = self.prob.solverModel
         else:
             h = self.highs
-            h.setOptionValue("time_limit", float(limit) if limit is not None else _INF)
+            # HiGHS measures its limit against the object's run time over
+            # every run() so far, not this run's: add what it has used.
+            h.setOptionValue(
+                "time_limit", h.getRunTime() + float(limit) if limit is not None else _INF
+            )
             if self.mip:
                 h.setOptionValue("objective_bound", _INF if below is None else float(below))
                 h.setOptionValue("mip_max_improving_sols", _ALL_SOLUTIONS if below is None else 1)

@@ -459,7 +459,10 @@ def starting_plan(
             if time.perf_counter() > t_end:
                 break
             c_move, a_move = price(move)
-            if c_move < cost - 1e-9 * max(1.0, abs(cost)):
+            # While no plan fits (cost inf) any plan that fits is a gain;
+            # inf - 1e-9 * inf would be NaN and accept nothing.
+            gain = not np.isfinite(cost) or c_move < cost - 1e-9 * max(1.0, abs(cost))
+            if np.isfinite(c_move) and gain:
                 hubs, cost, assign = move, c_move, a_move
                 improved = True
                 break

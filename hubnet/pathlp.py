@@ -30,7 +30,7 @@ replaced by a flow with the same optimum: columns ``g[p, a, b]`` for
 x[i, a] - x[j, a]``. Any transport plan is such a flow, and a flow that
 passes through a third hub costs no less than the direct transfer, so both
 forms have the same optimum and give a plan the same cost; the flow form
-has half the rows and is solved 2-3x faster (CAB, 25 cities, 4 hubs: 1.3-3.4 s
+has half the pair rows and is solved 2-3x faster (CAB, 25 cities, 4 hubs: 1.3-3.4 s
 against 3.2-11.9 s on the machine of benchmarks/README.md).
 
 When every ``x`` comes out 0 or 1 the plan it describes is optimal;
@@ -131,7 +131,7 @@ def relaxation_columns(data: NetworkData) -> int:
     """Columns of the relaxation's larger (transport) form for ``data``.
 
     Used to decide whether to build it; the flow form has ``n q + pairs q
-    (q - 1)`` columns, a few per cent fewer.
+    (q - 1)`` columns, a share 1/q fewer per pair.
     """
     w = data.flow_matrix()
     q = sum(1 for s in data.sites if s.is_candidate)
@@ -202,9 +202,10 @@ def relax_path(
     threads
         HiGHS threads (``None``: HiGHS's default), as for the whole solve.
     form
-        How each pair's hub-to-hub leg is written: ``"transport"`` (one
-        column per hub pair, two rows per hub) or ``"flow"`` (one column per
-        hub pair, one row per hub); ``"auto"``: flow when the transfer costs
+        How each OD pair's hub-to-hub leg is written: ``"transport"`` (per
+        OD pair one column per ordered hub pair, q^2, and two rows per hub)
+        or ``"flow"`` (per OD pair one column per ordered pair of distinct
+        hubs, q(q - 1), and one row per hub); ``"auto"``: flow when the transfer costs
         satisfy the triangle inequality (then both have the same optimum),
         else transport.
 
@@ -328,8 +329,12 @@ def relax_path(
     x = np.asarray(solution.col_value)[:n_x].reshape(n, q)
     reduced = np.full((n, n), np.inf)
     # At the upper bound (an allocation at 1) a reduced cost is <= 0 and
-    # says nothing about raising it: count it as 0.
-    reduced[:, cand] = np.maximum(np.asarray(solution.col_dual)[:n_x].reshape(n, q), 0.0)
+    # says nothing about raising it: count it as 0. A column fixed at 1 (a
+    # forced-open hub's own allocation) may show any reduced cost: it is in
+    # every plan, so 0 as well.
+    dual = np.maximum(np.asarray(solution.col_dual)[:n_x], 0.0)
+    dual[col_lo[:n_x] >= 1.0] = 0.0
+    reduced[:, cand] = dual.reshape(n, q)
     whole = bool(np.all(np.minimum(np.abs(x), np.abs(x - 1.0)) <= INTEGRAL_TOL))
     hubs: list[int] = []
     assign: np.ndarray | None = None
@@ -363,7 +368,9 @@ class PathPlan:
         The best plan's hubs and each site's hub (matrix indices);
         ``assign`` is ``None`` when no plan was found.
     proven
-        The search was finished: the plan is optimal to the gap asked.
+        The search was finished: the plan is optimal to the gap asked (or,
+        with ``assign`` ``None``, no plan exists among the allocations
+        searched).
     out_of_time
         The search was stopped by its time limit (not by ``max_nodes``).
     nodes
@@ -466,7 +473,9 @@ def branch_on_path(
             h.changeColBounds(j, v, v)
         set_before = fix
         if time_limit_s is not None:
-            h.setOptionValue("time_limit", max(time_limit_s - spent, 0.01))
+            # HiGHS measures its limit against the object's run time over
+            # every run() so far (the root and earlier nodes), not this run's.
+            h.setOptionValue("time_limit", h.getRunTime() + max(time_limit_s - spent, 0.01))
         h.run()
         nodes += 1
         status = h.getModelStatus()
@@ -508,7 +517,9 @@ def fixable(relaxed: PathRelaxation, incumbent: float, *, tol: float = 1e-7) -> 
     By LP duality, a plan allocating site i to hub k costs at least the
     relaxation's optimum plus that allocation's reduced cost; where this
     exceeds the cost of a plan in hand, the allocation can be left out of
-    the search (reduced-cost fixing).
+    the search (reduced-cost fixing).  Allocations fixed at 1 in the relaxation (a
+    forced-open hub's own) carry reduced cost 0 there, so they are never
+    ruled out.
     """
     slack = incumbent - relaxed.objective + tol * max(1.0, abs(incumbent))
     return np.asarray(relaxed.reduced_cost > slack)

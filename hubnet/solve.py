@@ -431,8 +431,8 @@ def _solve_one_hub(
     q candidates (O(q n^2)) is the proof of optimality, no solver needed.
     """
     t0 = time.perf_counter()
-    forced = [k for k, s in enumerate(data.sites) if s.hub_status == "open"]
-    cand = forced or [k for k, s in enumerate(data.sites) if s.is_candidate]
+    cand = [k for k, s in enumerate(data.sites) if s.is_candidate]
+    cand = [k for k in cand if data.sites[k].hub_status == "open"] or cand
     costs = [single_allocation_cost(data, d, params, np.full(data.n, k)) for k in cand]
     best = int(np.argmin(costs))
     hub, cost = cand[best], float(costs[best])
@@ -585,9 +585,9 @@ def _branch_on_path_model(
 
     ``left`` holds the time left of the run (s). Returns the plan's hubs,
     allocation and stats when the search proved it optimal or ran out of
-    time with a plan; else ``None`` (too many nodes, or its plan and its
-    re-priced cost disagree), with the best start for the flow model that
-    follows (the search's plan when cheaper than ``start``).
+    time with a plan; else ``None`` (no plan found, too many nodes, or its
+    plan and its re-priced cost disagree), with the best start for the flow
+    model that follows (the search's plan when cheaper than ``start``).
     """
     relaxed, model = path
     incumbent = None if start is None or start[1] is None else (start[2], start[1])
