@@ -95,6 +95,22 @@ def ap_params(allocation: str, hubs: int | None, capacitated: bool = False) -> H
     )
 
 
+def cab_params(allocation: str, p: int | None, alpha: float) -> HubModelParams:
+    """CAB cost convention (SOURCES.md section 1, from the *.3.4 files).
+
+    Collection = distribution = 1, transfer ``alpha``, raw flows and planar
+    distances (a cost of 1 per unit-distance).
+    """
+    return HubModelParams(
+        allocation="single" if allocation == "single" else "multiple",
+        hubs=p,
+        collection_factor=1.0,
+        transfer_factor=alpha,
+        distribution_factor=1.0,
+        cost_per_unit_km=1.0,
+    )
+
+
 def ap_network(n: int, fixed: str | None = None, cap: str | None = None) -> NetworkData:
     """AP instance with n nodes through hubnet's own table reader.
 

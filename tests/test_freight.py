@@ -34,7 +34,15 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from benchdata import PublishedRow, ap_network, ap_params, cab_network, euclid, published_rows
+from benchdata import (
+    PublishedRow,
+    ap_network,
+    ap_params,
+    cab_network,
+    cab_params,
+    euclid,
+    published_rows,
+)
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 from typer.testing import CliRunner
@@ -322,14 +330,7 @@ def test_reduces_to_classic_optimum_on_cab10(p: int, alpha: float) -> None:
     # = distribution = 1, transfer alpha; raw flows, planar distances.
     data = cab_network(10)
     d = euclid(data)
-    params = HubModelParams(
-        allocation="single",
-        hubs=p,
-        collection_factor=1.0,
-        transfer_factor=alpha,
-        distribution_factor=1.0,
-        cost_per_unit_km=1.0,
-    )
+    params = cab_params("single", p, alpha)
     classic = solve_network(data, d, params, SolverParams())
     fdata, fp = as_freight(data, params)
     sol = solve_freight(fdata, DistanceMatrix(d), params, fp, HIGHS)

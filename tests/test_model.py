@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from benchdata import ap_network, ap_params, cab_network, euclid
+from benchdata import ap_network, ap_params, cab_network, cab_params, euclid
 from bruteforce import brute_force
 
 from hubnet.config import HubModelParams, SolverParams
@@ -20,19 +20,6 @@ from hubnet.data import Demand, NetworkData, Site
 from hubnet.solve import solve_network
 
 ALPHAS = (0.2, 0.4, 0.6, 0.8, 1.0)
-
-
-def _cab_params(allocation: str, p: int, alpha: float) -> HubModelParams:
-    # CAB convention: collection = distribution = 1, transfer alpha
-    # (SOURCES.md section 1, from the *.3.4 files).
-    return HubModelParams(
-        allocation="single" if allocation == "single" else "multiple",
-        hubs=p,
-        collection_factor=1.0,
-        transfer_factor=alpha,
-        distribution_factor=1.0,
-        cost_per_unit_km=1.0,
-    )
 
 
 @pytest.mark.parametrize("allocation", ["single", "multiple"])
@@ -43,7 +30,7 @@ def test_cab10_matches_enumeration(allocation: str, p: int) -> None:
     w = data.flow_matrix()
     for alpha in ALPHAS:
         want, hubs = brute_force(d, w, allocation=allocation, p=p, alpha=alpha)
-        sol = solve_network(data, d, _cab_params(allocation, p, alpha), SolverParams())
+        sol = solve_network(data, d, cab_params(allocation, p, alpha), SolverParams())
         assert sol.stats.status == "optimal"
         assert sol.costs["total"] == pytest.approx(want, rel=1e-7), (alpha, hubs, sol.hub_ids)
         assert sol.stats.objective == pytest.approx(want, rel=1e-6)
@@ -61,7 +48,7 @@ def test_cab10_matches_enumeration(allocation: str, p: int) -> None:
 def test_cab_highs_and_cbc_agree(allocation: str, n: int, p: int, alpha: float) -> None:
     data = cab_network(n)
     d = euclid(data)
-    params = _cab_params(allocation, p, alpha)
+    params = cab_params(allocation, p, alpha)
     a = solve_network(data, d, params, SolverParams(name="highs"))
     b = solve_network(data, d, params, SolverParams(name="cbc"))
     assert a.stats.status == b.stats.status == "optimal"
@@ -200,7 +187,7 @@ def test_benders_matches_flow_formulation(dataset: str, n: int, p: int) -> None:
 
     data = cab_network(n) if dataset == "cab" else ap_network(n)
     d = euclid(data)
-    base = _cab_params("multiple", p, 0.6) if dataset == "cab" else ap_params("multiple", p)
+    base = cab_params("multiple", p, 0.6) if dataset == "cab" else ap_params("multiple", p)
     flow = solve_network(data, d, dataclasses.replace(base, formulation="flow"), SolverParams())
     cuts = solve_network(data, d, dataclasses.replace(base, formulation="benders"), SolverParams())
     assert flow.stats.status == cuts.stats.status == "optimal"

@@ -422,20 +422,13 @@ def test_branching_time_limit_counts_from_the_search_not_the_object() -> None:
     # re-solved from scratch); a search given 3 s must still finish its few
     # nodes (CAB n = 15, p = 3, alpha 1.0: 3 nodes, well under a second)
     # and reach the optimum the flow model's MILP on CBC finds.
-    from benchdata import cab_network
+    from benchdata import cab_network, cab_params
 
     from hubnet.pathlp import branch_on_path, relax_path
 
     data = cab_network(15)
     d = euclid(data)
-    params = HubModelParams(
-        allocation="single",
-        hubs=3,
-        collection_factor=1.0,
-        transfer_factor=1.0,
-        distribution_factor=1.0,
-        cost_per_unit_km=1.0,
-    )
+    params = cab_params("single", 3, 1.0)
     out = relax_path(data, d, params, threads=1)
     assert out is not None and not out[0].integral
     relaxed, model = out
