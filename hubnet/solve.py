@@ -354,8 +354,9 @@ def solve_network(
             data, d, params, _left(opts, t_run), (relaxed, path_model), start, progress
         )
         if branched is not None:
+            stats = _run_facts(branched[2], opts, start_seconds)
             return evaluate_plan(
-                data, d, params, branched[0], branched[1], branched[2], scenario=scenario
+                data, d, params, branched[0], branched[1], stats, scenario=scenario
             )
     if params.allocation == "multiple" and params.formulation in ("auto", "benders"):
         left = _left(opts, t_run)
@@ -365,11 +366,7 @@ def solve_network(
         hubs, stats = solve_multiple_benders(
             data, d, params, left, None if start is None else start[0], progress
         )
-        stats = dataclasses.replace(
-            stats,
-            start_seconds=start_seconds,
-            options={**stats.options, "time_limit_s": opts.time_limit_s},
-        )
+        stats = _run_facts(stats, opts, start_seconds)
         assign = None
     else:
         t0 = time.perf_counter()
@@ -387,11 +384,8 @@ def solve_network(
         left = _left(opts, t_run)
         progress(f"solving with {opts.name}{_limit_text(left, opts)}")
         stats = run_solver(model, left, progress)
-        stats = dataclasses.replace(
-            stats,
-            build_seconds=build_seconds,
-            start_seconds=start_seconds,
-            options={**stats.options, "time_limit_s": opts.time_limit_s},
+        stats = _run_facts(
+            dataclasses.replace(stats, build_seconds=build_seconds), opts, start_seconds
         )
         hubs, assign = model.open_hubs(), model.allocation()
     if stats.status == "infeasible":
@@ -413,6 +407,19 @@ def solve_network(
         + f" in {stats.solve_seconds:.1f} s"
     )
     return evaluate_plan(data, d, params, hubs, assign, stats, scenario=scenario)
+
+
+def _run_facts(stats: SolveStats, opts: SolverParams, start_seconds: float) -> SolveStats:
+    """``stats`` with the run's own time limit (s) and starting-search time (s).
+
+    Each route is handed the time left of the run; the summary reports the
+    limit the user set, and the starting search that ran before the route.
+    """
+    return dataclasses.replace(
+        stats,
+        start_seconds=start_seconds,
+        options={**stats.options, "time_limit_s": opts.time_limit_s},
+    )
 
 
 def _solve_one_hub(
