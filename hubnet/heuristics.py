@@ -383,11 +383,14 @@ def starting_plan(
     max_rounds: int = 50,
     max_seconds: float = 60.0,
     max_idle: int = 20,
+    initial_hubs: list[int] | None = None,
 ) -> tuple[list[int], np.ndarray | None, float] | None:
     """Find a good plan by greedy construction then swap/add/drop local search.
 
     Single allocation: the swap search stops after ``max_rounds`` improving
-    rounds or ``max_seconds`` of wall time, whichever comes first. Multiple
+    rounds or ``max_seconds`` of wall time, whichever comes first; with
+    ``initial_hubs`` (matrix indices, forced-open hubs included, as many as
+    asked) it starts from that hub set instead of the greedy one. Multiple
     allocation: iterated local search with exact O(n^2) move costs
     (:func:`search_multiple`), stopping after ``max_idle`` kicks in a row
     without a cheaper plan or at ``max_seconds``.
@@ -428,7 +431,10 @@ def starting_plan(
 
     t_end = time.perf_counter() + max_seconds
     target = params.hubs
-    hubs = _greedy_multiple(pricer, cand, forced, target)
+    if initial_hubs is not None and single:
+        hubs = sorted(set(initial_hubs) | set(forced))
+    else:
+        hubs = _greedy_multiple(pricer, cand, forced, target)
     if not single:
         hubs, cost = _iterate_multiple(
             _MultipleMoves(pricer), cand, hubs, set(forced), target, t_end, max_idle, seed=0

@@ -127,17 +127,38 @@ def satisfies_triangle(hop: np.ndarray, *, rel_tol: float = 1e-12) -> bool:
     return True
 
 
-def relaxation_columns(data: NetworkData) -> int:
+def hub_hop_costs(
+    data: NetworkData, d: np.ndarray, params: HubModelParams, cand: np.ndarray
+) -> np.ndarray:
+    """``(q, q)``: cost of one unit from candidate hub a to candidate hub b.
+
+    The transfer (discounted distance) plus the second hub's handling,
+    currency per unit, with a zero diagonal; ``cand`` holds the candidates'
+    matrix indices and ``d`` the ``(n, n)`` distances, km.
+    """
+    handling = np.array([s.handling_cost for s in data.sites], dtype=float)
+    _collect, transfer, _distribute = unit_path_costs(d, params)
+    hop = transfer[np.ix_(cand, cand)] + handling[cand][None, :]
+    np.fill_diagonal(hop, 0.0)
+    return np.asarray(hop, dtype=float)
+
+
+def relaxation_columns(data: NetworkData, allowed: np.ndarray | None = None) -> int:
     """Columns of the relaxation's larger (transport) form for ``data``.
 
     Used to decide whether to build it; the flow form has ``n q + pairs q
-    (q - 1)`` columns, a share 1/q fewer per pair.
+    (q - 1)`` columns, a share 1/q fewer per pair. With ``allowed`` (see
+    :func:`relax_path`) each pair counts the product of its two ends'
+    allowed hubs instead of ``q^2``.
     """
     w = data.flow_matrix()
-    q = sum(1 for s in data.sites if s.is_candidate)
-    both = w + w.T
-    pairs = int(np.count_nonzero(np.triu(both, k=1) > 0))
-    return data.n * q + pairs * q * q
+    cand = [k for k, s in enumerate(data.sites) if s.is_candidate]
+    q = len(cand)
+    iu, ju = np.nonzero(np.triu(w + w.T, k=1) > 0)
+    if allowed is None:
+        return data.n * q + len(iu) * q * q
+    per_site = allowed[:, cand].sum(axis=1)
+    return data.n * q + int((per_site[iu] * per_site[ju]).sum())
 
 
 def solve_path_relaxation(
@@ -186,6 +207,7 @@ def relax_path(
     time_limit_s: float | None = None,
     threads: int | None = None,
     form: Literal["auto", "flow", "transport"] = "auto",
+    allowed: np.ndarray | None = None,
 ) -> tuple[PathRelaxation, PathModel] | None:
     """Build and solve the path relaxation; return it and the model in HiGHS.
 
@@ -205,9 +227,17 @@ def relax_path(
         How each OD pair's hub-to-hub leg is written: ``"transport"`` (per
         OD pair one column per ordered hub pair, q^2, and two rows per hub)
         or ``"flow"`` (per OD pair one column per ordered pair of distinct
-        hubs, q(q - 1), and one row per hub); ``"auto"``: flow when the transfer costs
-        satisfy the triangle inequality (then both have the same optimum),
-        else transport.
+        hubs, q(q - 1), and one row per hub); ``"auto"``: flow when the
+        transfer costs satisfy the triangle inequality (then both have the
+        same optimum), else transport.
+    allowed
+        ``(n, n)`` booleans: the allocations "site i to hub k" that may be
+        used (``None``: all). The others are left out, with their pairs'
+        columns and rows; a forced-open hub's own allocation is always in.
+        The relaxation then bounds only the plans made of allowed
+        allocations (for example, all plans cheaper than a plan in hand
+        after reduced-cost fixing), and ``reduced_cost`` is ``inf`` on the
+        others.
 
     Returns
     -------
@@ -225,15 +255,15 @@ def relax_path(
     if q == 0:
         return None
     w = data.flow_matrix().astype(float)
-    handling = np.array([s.handling_cost for s in data.sites], dtype=float)
-    _collect, transfer, _distribute = unit_path_costs(d, params)
     iu, ju = np.nonzero(np.triu(w + w.T, k=1) > 0)
-    n_pairs = len(iu)
+    ok = np.ones((n, q), dtype=bool) if allowed is None else allowed[:, cand].astype(bool)
+    for a, k in enumerate(cand):
+        if data.sites[k].hub_status == "open":
+            ok[k, a] = True
 
     # Costs.
     cx = allocation_costs(data, d, params, [int(k) for k in cand])
-    hop = transfer[np.ix_(cand, cand)] + handling[cand][None, :]
-    np.fill_diagonal(hop, 0.0)
+    hop = hub_hop_costs(data, d, params, cand)
     if form == "auto":
         form = "flow" if satisfies_triangle(hop) else "transport"
     # Pair cost of hub a for i and hub b for j, both directions of the pair.
@@ -261,34 +291,44 @@ def relax_path(
         rows.append(np.full(q, r_count))
         cols.append(xcol(cand, np.arange(q)))
         vals.append(np.ones(q))
-    pp, qa = (g.ravel() for g in np.indices((n_pairs, q)))
-    if form == "transport":
-        # u[p, a, b]: rows sum_b u = x[i, a] and sum_a u = x[j, b].
-        n_u = n_pairs * q * q
-        p_idx, a_idx, b_idx = (g.ravel() for g in np.indices((n_pairs, q, q)))
-        cost_u = cu.ravel()
-        r_pj = r_pair + n_pairs * q
-        n_row = r_pj + n_pairs * q
-        rows += [r_pair + p_idx * q + a_idx, r_pj + p_idx * q + b_idx]
-        vals += [np.ones(n_u), np.ones(n_u)]
-        rows += [r_pair + pp * q + qa, r_pj + pp * q + qa]
-        vals += [-np.ones(n_pairs * q), -np.ones(n_pairs * q)]
-    else:
-        # g[p, a, b], a != b: rows out - in = x[i, a] - x[j, a] at every hub a.
-        arc_a, arc_b = np.nonzero(~np.eye(q, dtype=bool))
-        n_u = n_pairs * len(arc_a)
-        p_idx = np.repeat(np.arange(n_pairs), len(arc_a))
-        a_idx, b_idx = np.tile(arc_a, n_pairs), np.tile(arc_b, n_pairs)
-        cost_u = cu[:, arc_a, arc_b].ravel()
-        n_row = r_pair + n_pairs * q
-        rows += [r_pair + p_idx * q + a_idx, r_pair + p_idx * q + b_idx]
-        vals += [np.ones(n_u), -np.ones(n_u)]
-        rows += [r_pair + pp * q + qa, r_pair + pp * q + qa]
-        vals += [-np.ones(n_pairs * q), np.ones(n_pairs * q)]
+    # Which hubs each end of each pair may use: s_i for the pair's first
+    # end, s_j for its second, (pairs, q) booleans.
+    s_i, s_j = ok[iu], ok[ju]
     n_x = n * q
+    if form == "transport":
+        # u[p, a, b]: rows sum_b u = x[i, a] (a in s_i), sum_a u = x[j, b] (b in s_j).
+        p_idx, a_idx, b_idx = np.nonzero(s_i[:, :, None] & s_j[:, None, :])
+        ri = np.cumsum(s_i.ravel()).reshape(s_i.shape) - 1
+        rj = np.cumsum(s_j.ravel()).reshape(s_j.shape) - 1
+        r_pj = r_pair + int(s_i.sum())
+        n_row = r_pj + int(s_j.sum())
+        n_u = len(p_idx)
+        rows += [r_pair + ri[p_idx, a_idx], r_pj + rj[p_idx, b_idx]]
+        vals += [np.ones(n_u), np.ones(n_u)]
+        pi, ai = np.nonzero(s_i)
+        pj, bj = np.nonzero(s_j)
+        rows += [r_pair + ri[pi, ai], r_pj + rj[pj, bj]]
+        vals += [-np.ones(len(pi)), -np.ones(len(pj))]
+    else:
+        # g[p, a, b], a in s_i, b in s_j, a != b: rows out - in = x[i, a] -
+        # x[j, a] at every hub a either end may use.
+        arcs = s_i[:, :, None] & s_j[:, None, :] & ~np.eye(q, dtype=bool)[None]
+        p_idx, a_idx, b_idx = np.nonzero(arcs)
+        either = s_i | s_j
+        ri = np.cumsum(either.ravel()).reshape(either.shape) - 1
+        rj = ri
+        n_row = r_pair + int(either.sum())
+        n_u = len(p_idx)
+        rows += [r_pair + ri[p_idx, a_idx], r_pair + ri[p_idx, b_idx]]
+        vals += [np.ones(n_u), -np.ones(n_u)]
+        pi, ai = np.nonzero(s_i)
+        pj, bj = np.nonzero(s_j)
+        rows += [r_pair + ri[pi, ai], r_pair + rj[pj, bj]]
+        vals += [-np.ones(len(pi)), np.ones(len(pj))]
+    cost_u = cu[p_idx, a_idx, b_idx]
     n_col = n_x + n_u
     u_cols = n_x + np.arange(n_u)
-    cols += [u_cols, u_cols, xcol(iu[pp], qa), xcol(ju[pp], qa)]
+    cols += [u_cols, u_cols, xcol(iu[pi], ai), xcol(ju[pj], bj)]
     cost = np.concatenate([cx.ravel(), cost_u])
 
     row = np.concatenate(rows)
@@ -306,7 +346,7 @@ def relax_path(
         row_lo[r_count] = row_hi[r_count] = float(params.hubs or 0)
     col_lo = np.zeros(n_col)
     col_hi = np.full(n_col, highspy.kHighsInf)
-    col_hi[:n_x] = 1.0
+    col_hi[:n_x] = ok.ravel()
     for a, k in enumerate(cand):
         if data.sites[k].hub_status == "open":
             col_lo[xcol(np.array(k), np.array(a))] = 1.0
@@ -334,6 +374,7 @@ def relax_path(
     # every plan, so 0 as well.
     dual = np.maximum(np.asarray(solution.col_dual)[:n_x], 0.0)
     dual[col_lo[:n_x] >= 1.0] = 0.0
+    dual[~ok.ravel()] = np.inf
     reduced[:, cand] = dual.reshape(n, q)
     whole = bool(np.all(np.minimum(np.abs(x), np.abs(x - 1.0)) <= INTEGRAL_TOL))
     hubs: list[int] = []
@@ -533,6 +574,7 @@ __all__ = [
     "PathRelaxation",
     "branch_on_path",
     "fixable",
+    "hub_hop_costs",
     "relax_path",
     "relaxation_columns",
     "solve_path_relaxation",

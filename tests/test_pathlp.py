@@ -60,7 +60,7 @@ def _enumerated(
     fixed: np.ndarray,
     handling: np.ndarray,
     *,
-    p: int,
+    p: int | None,
     alpha: float,
     allocation: str = "single",
     forced: list[int] | None = None,
@@ -441,3 +441,161 @@ def test_branching_time_limit_counts_from_the_search_not_the_object() -> None:
     assert found.proven and not found.out_of_time
     want = solve_network(data, d, params, SolverParams(name="cbc"))
     assert found.objective == pytest.approx(want.costs["total"], rel=1e-7)
+
+
+def _narrowing(lines: list[str]) -> tuple[int, int] | None:
+    """(allocations, hubs) ruled out, from solve_network's progress lines."""
+    import re
+
+    for line in lines:
+        m = re.search(r"(\d+) of \d+ allocations ruled out, (\d+) of", line)
+        if m:
+            return int(m.group(1)), int(m.group(2))
+    return None
+
+
+NARROWED = {
+    "cbc": "single-allocation flow (EK96)",
+    "path": "single-allocation path formulation, branch and bound on its relaxation",
+}
+
+
+@pytest.mark.parametrize("route", ["cbc", "path"])
+@pytest.mark.parametrize("p", [None, 2, 3])
+def test_flow_model_narrowed_by_its_own_relaxation_keeps_the_optimum(
+    monkeypatch: pytest.MonkeyPatch, p: int | None, route: str
+) -> None:
+    # Where the whole path relaxation is too large to build, the flow
+    # model's LP rules out allocations and hubs (reduced costs, probing),
+    # then either the path relaxation over the allocations left is branched
+    # on ("path") or, when that too is too large, the flow model is built
+    # again without the hubs ruled out and CBC solves it ("cbc").
+    # Reference: tests/bruteforce.py (every hub set and allocation), with
+    # fixed and handling costs.
+    import hubnet.solve
+
+    if route == "cbc":
+        monkeypatch.setattr(hubnet.solve, "PATH_MAX_COLUMNS", 0)
+    else:
+        monkeypatch.setattr(hubnet.solve, "_path_relaxation_first", lambda *args: False)
+    allocations = hubs = 0
+    for seed in range(8):
+        data, d, fixed, handling = _network(seed, n=8)
+        params = HubModelParams(allocation="single", hubs=p, transfer_factor=0.8)
+        lines: list[str] = []
+        sol = solve_network(data, d, params, SolverParams(), progress=lines.append)
+        want, _ = _enumerated(data, d, fixed, handling, p=p, alpha=0.8)
+        assert sol.stats.formulation == NARROWED[route]
+        assert sol.stats.status == "optimal"
+        assert sol.costs["total"] == pytest.approx(want, rel=1e-7), seed
+        narrowed = _narrowing(lines)
+        assert narrowed is not None, lines
+        allocations += narrowed[0]
+        hubs += narrowed[1]
+    # It rules out a share of the 8 x 8 allocations of each network, and
+    # some hubs (measured: 225-428 allocations, 1-4 hubs over the 8 networks).
+    assert allocations >= 100 and hubs >= 1
+
+
+def test_narrowing_keeps_forced_hubs_and_bent_matrices(monkeypatch: pytest.MonkeyPatch) -> None:
+    # A forced-open hub is never ruled out; a matrix that breaks the triangle
+    # inequality keeps every hub's transfers (only allocations are fixed).
+    # Reference: tests/bruteforce.py. CBC asked by name gets the model unnarrowed.
+    from dataclasses import replace
+
+    import hubnet.solve
+
+    monkeypatch.setattr(hubnet.solve, "PATH_MAX_COLUMNS", 0)
+    rebuilt = 0
+    for seed in range(6):
+        data, d, fixed, handling = _network(seed, n=8)
+        k = (3 * seed) % data.n
+        sites = list(data.sites)
+        sites[k] = replace(sites[k], hub_status="open")
+        data = replace(data, sites=tuple(sites))
+        bent = d.copy()
+        bent[0, 1] = bent[1, 0] = 3.0 * (d[0, 2] + d[2, 1])
+        params = HubModelParams(allocation="single", hubs=3, transfer_factor=0.8)
+        for dist in (d, bent):
+            want, _ = _enumerated(data, dist, fixed, handling, p=3, alpha=0.8, forced=[k])
+            lines: list[str] = []
+            sol = solve_network(data, dist, params, SolverParams(), progress=lines.append)
+            assert sol.stats.status == "optimal" and data.sites[k].id in sol.hub_ids
+            assert sol.costs["total"] == pytest.approx(want, rel=1e-7), seed
+            narrowed = _narrowing(lines)
+            assert narrowed is not None
+            built, left = _model_sizes(lines)
+            # Rebuilt smaller only with hubs ruled out and a metric matrix.
+            if dist is bent or narrowed[1] == 0:
+                assert left == built
+            else:
+                assert left < built
+                rebuilt += 1
+        lines = []
+        solve_network(data, d, params, SolverParams(name="cbc"), progress=lines.append)
+        assert _narrowing(lines) is None
+    assert rebuilt >= 1
+
+
+def _model_sizes(lines: list[str]) -> tuple[int, int]:
+    """Variables of the flow model as built and as left after narrowing."""
+    import re
+
+    text = "\n".join(lines)
+    built = re.search(r"model built in [\d.]+ s: (\d+) variables", text)
+    left = re.search(r"(\d+) variables left", text)
+    assert built and left, lines
+    return int(built.group(1)), int(left.group(1))
+
+
+def test_probing_closes_only_hubs_no_cheaper_plan_opens() -> None:
+    # Every hub that probing closes must be open in no plan cheaper than the
+    # incumbent: the enumerated best plan with that hub forced open
+    # (tests/bruteforce.py) costs at least as much. The incumbent is set 3 %
+    # above the optimum so that some hubs open in cheaper plans must be kept.
+    import pulp
+
+    from hubnet.model import build_model
+    from hubnet.solve import _probe_hubs
+
+    closed_total = kept_near = 0
+    for seed in range(10):
+        data, d, fixed, handling = _network(seed, n=8)
+        params = HubModelParams(allocation="single", hubs=2, transfer_factor=0.8)
+        best, best_hubs = _enumerated(data, d, fixed, handling, p=2, alpha=0.8)
+        incumbent = 1.03 * best
+        model = build_model(data, d, params)
+        model.problem.solve(pulp.HiGHS(msg=False, mip=False, presolve="off"))
+        closed = _probe_hubs(model, set(best_hubs), incumbent, budget_s=30.0)
+        for k in range(data.n):
+            if k in best_hubs:
+                continue
+            forced, _ = _enumerated(data, d, fixed, handling, p=2, alpha=0.8, forced=[k])
+            if k in closed:
+                assert forced >= incumbent * (1 - 1e-9), (seed, k)
+            elif forced < incumbent:
+                kept_near += 1
+        closed_total += len(closed)
+    assert closed_total >= 10  # it does close hubs on these networks
+    assert kept_near >= 5  # and there were hubs it had to keep
+
+
+def test_swap_search_from_given_hubs_is_no_worse_than_they_are() -> None:
+    # starting_plan(initial_hubs=...) starts its swap search from the hub set
+    # given (the flow LP's favourites in solve_network): its plan costs no
+    # more than that set allocated as is, and no less than the enumerated
+    # optimum (tests/bruteforce.py).
+    from hubnet.heuristics import allocate_to_hubs, starting_plan
+
+    for seed in range(6):
+        data, d, fixed, handling = _network(seed, n=8)
+        params = HubModelParams(allocation="single", hubs=3, transfer_factor=0.8)
+        best, _ = _enumerated(data, d, fixed, handling, p=3, alpha=0.8)
+        given = [seed % 8, (seed + 3) % 8, (seed + 5) % 8]
+        assign = allocate_to_hubs(data, d, params, given)
+        assert assign is not None
+        as_is = single_allocation_cost(data, d, params, assign)
+        found = starting_plan(data, d, params, initial_hubs=given)
+        assert found is not None and len(found[0]) == 3
+        assert best * (1 - 1e-9) <= found[2] <= as_is * (1 + 1e-12)
+        assert found[2] == pytest.approx(single_allocation_cost(data, d, params, found[1]))
