@@ -542,6 +542,11 @@ def _fix_by_reduced_cost(
     )
 
 
+#: Share of the time left that the flow model's LP may take before narrowing
+#: is given up (:func:`_narrow_by_flow_relaxation`).
+LP_SHARE = 0.5
+
+
 def _flow_fixing_pays(
     params: HubModelParams,
     requested: str,
@@ -588,14 +593,19 @@ def _narrow_by_flow_relaxation(
     LP was not solved); ``model`` is left with no value set.
     """
     t0 = time.perf_counter()
-    lp = pulp.HiGHS(
-        msg=False, mip=False, timeLimit=left.time_limit_s, threads=left.threads, presolve="off"
-    )
+    # At most half the time left: the MILP that may follow needs the rest.
+    limit = None if left.time_limit_s is None else LP_SHARE * left.time_limit_s
+    lp = pulp.HiGHS(msg=False, mip=False, timeLimit=limit, threads=left.threads, presolve="off")
     progress("solving the flow model's linear relaxation (HiGHS) to rule out allocations")
     model.problem.solve(lp)
     lp_seconds = time.perf_counter() - t0
     bound = pulp.value(model.problem.objective)
-    if model.problem.status != pulp.LpStatusOptimal or bound is None:
+    # PuLP reports a time-limited HiGHS run as solved, with the objective
+    # and duals of wherever the simplex stopped: only HiGHS's own status
+    # says whether they are optimal (and the reduced costs valid).
+    h = getattr(model.problem, "solverModel", None)
+    solved = h is not None and h.getModelStatus() == highspy.HighsModelStatus.kOptimal
+    if not solved or bound is None:
         for var in model.problem.variables():
             var.varValue = None
         progress("linear relaxation not solved in time: no allocation ruled out")

@@ -599,3 +599,25 @@ def test_swap_search_from_given_hubs_is_no_worse_than_they_are() -> None:
         assert found is not None and len(found[0]) == 3
         assert best * (1 - 1e-9) <= found[2] <= as_is * (1 + 1e-12)
         assert found[2] == pytest.approx(single_allocation_cost(data, d, params, found[1]))
+
+
+def test_narrowing_gives_up_when_its_lp_would_eat_the_time_limit() -> None:
+    # AP, 40 sites (published data): the flow model's LP takes seconds; with
+    # 0.2 s left it may take 0.1 s, stops unsolved, and nothing may be ruled
+    # out (PuLP reports such a stopped HiGHS run as solved, with the duals of
+    # wherever the simplex stopped: fixing by them cut the optimum off).
+    from hubnet.heuristics import starting_plan
+    from hubnet.model import build_model
+    from hubnet.solve import _narrow_by_flow_relaxation
+
+    data = ap_network(40)
+    d = euclid(data)
+    params = ap_params("single", 3)
+    start = starting_plan(data, d, params)
+    assert start is not None
+    lines: list[str] = []
+    model = build_model(data, d, params)
+    left = SolverParams(time_limit_s=0.2)
+    out, allowed = _narrow_by_flow_relaxation(model, data, d, params, start, left, lines.append)
+    assert allowed is None and out == start
+    assert any("linear relaxation not solved in time" in x for x in lines), lines
