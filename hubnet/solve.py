@@ -554,13 +554,15 @@ def _flow_fixing_pays(
 ) -> bool:
     """Fix allocations by the flow model's own relaxation before its MILP.
 
-    Single allocation without sort capacities whose path relaxation was not
-    built (too large), a priced starting plan, and not CBC asked for by name
-    (that choice must reach CBC unaided; the cross-checks depend on it).
+    Single allocation whose path relaxation was not built (too large, or
+    sort capacities, which it does not model), a priced starting plan, and
+    not CBC asked for by name (that choice must reach CBC unaided; the
+    cross-checks depend on it). With sort capacities the LP has them too
+    (AP capacitated, 25 sites, tight fixed costs and capacities: 69 s ->
+    15 s).
     """
     return (
         params.allocation == "single"
-        and not params.capacitated
         and requested in ("auto", "highs")
         and start[1] is not None
         and bool(np.isfinite(start[2]))
@@ -737,8 +739,8 @@ def _branch_on_narrowed_path(
     ``None`` (too large, not solved, or handed back) to go on with the
     flow model's MILP; and the best start for that MILP.
     """
-    if allowed is None or start[1] is None:
-        return None, start
+    if allowed is None or start[1] is None or params.capacitated:
+        return None, start  # (the path relaxation has no sort capacities)
     columns = relaxation_columns(data, allowed)
     if columns > PATH_MAX_COLUMNS:
         return None, start

@@ -376,29 +376,14 @@ def test_capacitated_start_with_a_fixed_hub_count() -> None:
     # start on most, every start must fit and cost no less than the optimum.
     # (When the first hub set did not fit, the swap search accepted no move
     # at all: the cost test compared against inf - inf.)
-    from dataclasses import replace
 
     from hubnet.heuristics import starting_plan
 
     feasible = started = 0
     for seed in range(30):
-        data, d, fixed, handling = _network(seed)
-        rng = np.random.default_rng(500 + seed)
-        w = data.flow_matrix()
-        cap = np.round(rng.uniform(0.5, 1.6, data.n) * w.sum() / rng.uniform(2, 4), 1)
-        sites = tuple(replace(s, sort_capacity=float(cap[i])) for i, s in enumerate(data.sites))
-        data = replace(data, sites=sites)
+        data, d, w, cap = _capacitated(seed, 0.5, (2, 4))
         for p in (2, 3):
-            want, _ = brute_force(
-                d,
-                w,
-                allocation="single",
-                p=p,
-                alpha=0.8,
-                fixed=fixed,
-                handling=handling,
-                capacity=cap,
-            )
+            want = _capacitated_optimum(seed, w, cap, p)
             if not np.isfinite(want):
                 continue
             feasible += 1
@@ -414,7 +399,7 @@ def test_capacitated_start_with_a_fixed_hub_count() -> None:
             load = np.bincount(assign, weights=w.sum(axis=1), minlength=data.n)
             assert all(load[k] <= cap[k] + 1e-9 for k in hubs)
             assert cost >= want * (1 - 1e-9)
-    # 34 of 39 here; 17 of 39 before the fix.
+    # When written (other random capacities): 34 of 39, and 17 of 39 before the fix.
     assert feasible >= 20 and started >= 0.8 * feasible
 
 
@@ -621,3 +606,63 @@ def test_narrowing_gives_up_when_its_lp_would_eat_the_time_limit() -> None:
     out, allowed = _narrow_by_flow_relaxation(model, data, d, params, start, left, lines.append)
     assert allowed is None and out == start
     assert any("linear relaxation not solved in time" in x for x in lines), lines
+
+
+def test_capacitated_runs_narrowed_reach_the_enumerated_optimum() -> None:
+    # Sort capacities: the flow model's LP (with the capacity rows) rules out
+    # allocations and hubs before CBC runs. Reference: tests/bruteforce.py
+    # over every hub set and every allocation within the capacities.
+
+    checked = 0
+    for seed in range(12):
+        data, d, w, cap = _capacitated(100 + seed, 0.6, (2, 3))
+        for p in (None, 2):
+            want = _capacitated_optimum(100 + seed, w, cap, p)
+            if not np.isfinite(want):
+                continue
+            params = HubModelParams(
+                allocation="single", hubs=p, transfer_factor=0.8, capacitated=True
+            )
+            lines: list[str] = []
+            sol = solve_network(data, d, params, SolverParams(), progress=lines.append)
+            if _narrowing(lines) is None:
+                continue  # no start found: nothing to narrow against
+            assert sol.stats.status == "optimal"
+            assert sol.costs["total"] == pytest.approx(want, rel=1e-7), (seed, p)
+            checked += 1
+    assert checked >= 10
+
+
+def _capacitated(
+    seed: int, low: float, divisors: tuple[float, float]
+) -> tuple[NetworkData, np.ndarray, np.ndarray, np.ndarray]:
+    """A random network (``_network``) with random sort capacities.
+
+    Each site sorts ``uniform(low, 1.6)`` times the total volume divided by
+    ``uniform(*divisors)``, units per day. Returns the network, the
+    distances, the flow matrix and the capacities.
+    """
+    from dataclasses import replace
+
+    data, d, _fixed, _handling = _network(seed)
+    rng = np.random.default_rng(seed)
+    w = data.flow_matrix()
+    cap = np.round(rng.uniform(low, 1.6, data.n) * w.sum() / rng.uniform(*divisors), 1)
+    sites = tuple(replace(s, sort_capacity=float(cap[i])) for i, s in enumerate(data.sites))
+    return replace(data, sites=sites), d, w, cap
+
+
+def _capacitated_optimum(seed: int, w: np.ndarray, cap: np.ndarray, p: int | None) -> float:
+    """Enumerated optimum within the capacities (tests/bruteforce.py), alpha 0.8."""
+    _data, d, fixed, handling = _network(seed)
+    want, _ = brute_force(
+        d,
+        w,
+        allocation="single",
+        p=p,
+        alpha=0.8,
+        fixed=fixed,
+        handling=handling,
+        capacity=cap,
+    )
+    return float(want)
