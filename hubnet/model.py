@@ -57,10 +57,6 @@ class HubModel:
         k". Empty for multiple allocation.
     candidates
         Matrix indices of candidate hubs.
-    transfers
-        Single allocation: ``transfers[(i, k, m)]`` the volume sent from
-        terminal i that moves from hub k to hub m (units per day). Empty for
-        multiple allocation.
     """
 
     problem: pulp.LpProblem
@@ -68,7 +64,6 @@ class HubModel:
     hub: list[pulp.LpVariable | None]
     assign: dict[tuple[int, int], pulp.LpVariable] = field(default_factory=dict)
     candidates: list[int] = field(default_factory=list)
-    transfers: dict[tuple[int, int, int], pulp.LpVariable] = field(default_factory=dict)
 
     def open_hubs(self) -> list[int]:
         """Indices of hubs open in the solver's current values."""
@@ -259,7 +254,7 @@ def _single_allocation(
             for v, a in terms:
                 merged[v] = merged.get(v, 0.0) + a
             prob += _expr(list(merged.items())) == 0, f"flow_{i}_{k}"
-    return HubModel(prob, "single-allocation flow (EK96)", hub, x, cand, transfers=y)
+    return HubModel(prob, "single-allocation flow (EK96)", hub, x, cand)
 
 
 def _multiple_allocation(

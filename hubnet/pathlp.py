@@ -257,9 +257,11 @@ def relax_path(
     w = data.flow_matrix().astype(float)
     iu, ju = np.nonzero(np.triu(w + w.T, k=1) > 0)
     ok = np.ones((n, q), dtype=bool) if allowed is None else allowed[:, cand].astype(bool)
-    for a, k in enumerate(cand):
-        if data.sites[k].hub_status == "open":
-            ok[k, a] = True
+    # A forced-open hub's own allocation: always in, and fixed at 1 below.
+    forced = np.array(
+        [a for a, k in enumerate(cand) if data.sites[k].hub_status == "open"], dtype=np.int64
+    )
+    ok[cand[forced], forced] = True
 
     # Costs.
     cx = allocation_costs(data, d, params, [int(k) for k in cand])
@@ -347,9 +349,7 @@ def relax_path(
     col_lo = np.zeros(n_col)
     col_hi = np.full(n_col, highspy.kHighsInf)
     col_hi[:n_x] = ok.ravel()
-    for a, k in enumerate(cand):
-        if data.sites[k].hub_status == "open":
-            col_lo[xcol(np.array(k), np.array(a))] = 1.0
+    col_lo[xcol(cand[forced], forced)] = 1.0
 
     h = quiet_highs(threads)
     # HiGHS's presolve costs more than it saves on this LP: CAB n = 25, p = 4,

@@ -607,25 +607,26 @@ def _narrow_by_flow_relaxation(
     # says whether they are optimal (and the reduced costs valid).
     h = getattr(model.problem, "solverModel", None)
     solved = h is not None and h.getModelStatus() == highspy.HighsModelStatus.kOptimal
-    if not solved or bound is None:
+    try:
+        if not solved or bound is None:
+            progress("linear relaxation not solved in time: no allocation ruled out")
+            return start, None
+        budget = start_budget(data.n, params.allocation, left.time_limit_s)
+        start = _lp_guided_start(model, data, d, params, start, budget, progress)
+        slack = start[2] - float(bound) + 1e-7 * max(1.0, abs(start[2]))
+        # At its upper bound a reduced cost is <= 0 and says nothing.
+        out = {key for key, var in model.assign.items() if max(var.dj or 0.0, 0.0) > slack}
+        closed = {k for (i, k) in out if i == k}
+        probe_s = lp_seconds
+        if left.time_limit_s is not None:
+            probe_s = min(probe_s, START_SHARE * left.time_limit_s)
+        probed = _probe_hubs(model, closed | set(start[0]), start[2], probe_s)
+        closed |= probed
+        out |= {(i, k) for (i, k) in model.assign if k in closed}
+    finally:
+        # The MILP that may follow gets the start, not the LP's values.
         for var in model.problem.variables():
             var.varValue = None
-        progress("linear relaxation not solved in time: no allocation ruled out")
-        return start, None
-    budget = start_budget(data.n, params.allocation, left.time_limit_s)
-    start = _lp_guided_start(model, data, d, params, start, budget, progress)
-    slack = start[2] - float(bound) + 1e-7 * max(1.0, abs(start[2]))
-    # At its upper bound a reduced cost is <= 0 and says nothing.
-    out = {key for key, var in model.assign.items() if max(var.dj or 0.0, 0.0) > slack}
-    closed = {k for (i, k) in out if i == k}
-    probe_s = lp_seconds
-    if left.time_limit_s is not None:
-        probe_s = min(probe_s, START_SHARE * left.time_limit_s)
-    probed = _probe_hubs(model, closed | set(start[0]), start[2], probe_s)
-    closed |= probed
-    out |= {(i, k) for (i, k) in model.assign if k in closed}
-    for var in model.problem.variables():
-        var.varValue = None
     allowed = np.zeros((data.n, data.n), dtype=bool)
     for key in model.assign:
         allowed[key] = key not in out
