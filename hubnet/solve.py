@@ -9,6 +9,7 @@ stopped by the time limit is reported as ``time_limit``, never as optimal.
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import os
 import re
@@ -20,6 +21,7 @@ from pathlib import Path
 
 import highspy
 import numpy as np
+import psutil
 import pulp
 
 from hubnet._highs import silence_highs_banner, use_threads
@@ -138,18 +140,72 @@ _CBC_PROGRESS = re.compile(
 )
 
 
-class _LogWatcher(threading.Thread):
-    """Reads CBC's log while it runs and reports its latest progress line."""
+#: CBC gets this long past its time limit (s), plus :data:`CBC_GRACE_SHARE`
+#: of the limit, before it is stopped from outside (see :class:`_LogWatcher`).
+CBC_GRACE_S = 1.0
+CBC_GRACE_SHARE = 0.05
 
-    def __init__(self, path: str, progress: Progress, every_s: float = 5.0) -> None:
+
+def _stop_cbc_children() -> bool:
+    """Terminate (then kill) the CBC processes this process started.
+
+    Returns whether any was found. PuLP runs CBC as a child process and
+    waits for it; CBC checks its own time limit only between nodes, never
+    inside the root LP and its cuts, so on large models a run asked for 3 s
+    went on for 40 s (AP, 50 sites, flow model) and one asked for 20 s for
+    over 10 minutes (100 sites). A SIGINT does not stop the root LP either.
+    """
+    me = psutil.Process()
+    found = [c for c in me.children(recursive=True) if "cbc" in c.name().lower()]
+    for c in found:
+        with contextlib.suppress(psutil.Error):
+            c.terminate()
+    _gone, alive = psutil.wait_procs(found, timeout=1.0)
+    for c in alive:
+        with contextlib.suppress(psutil.Error):
+            c.kill()
+    return bool(found)
+
+
+class _LogWatcher(threading.Thread):
+    """Reads CBC's log while it runs and reports its latest progress line.
+
+    With a ``deadline`` (a ``time.perf_counter()`` value) it also stops CBC
+    once the deadline has passed, and sets :attr:`stopped`.
+    """
+
+    def __init__(
+        self,
+        path: str,
+        progress: Progress,
+        every_s: float = 5.0,
+        deadline: float | None = None,
+    ) -> None:
         super().__init__(daemon=True)
         self.path = path
         self.report = progress
         self.every_s = every_s
+        self.deadline = deadline
         self.done = threading.Event()
+        self.stopped = False
+        self._next_report = time.perf_counter() + every_s
+
+    def _wait_s(self) -> float:
+        until = self._next_report
+        if self.deadline is not None and not self.stopped:
+            until = min(until, self.deadline)
+        return max(0.05, until - time.perf_counter())
 
     def run(self) -> None:
-        while not self.done.wait(self.every_s):
+        while not self.done.wait(self._wait_s()):
+            now = time.perf_counter()
+            if self.deadline is not None and not self.stopped and now >= self.deadline:
+                # Set first: PuLP raises as soon as CBC is gone.
+                self.stopped = True
+                _stop_cbc_children()
+            if now < self._next_report:
+                continue
+            self._next_report = now + self.every_s
             try:
                 text = Path(self.path).read_text(errors="replace")
             except OSError:
@@ -258,17 +314,34 @@ def run_solver(
         if not np.isfinite(bound):
             bound = None
     else:
-        watcher = _LogWatcher(log_path, progress)
+        deadline = None
+        if opts.time_limit_s is not None:
+            deadline = start + opts.time_limit_s * (1 + CBC_GRACE_SHARE) + CBC_GRACE_S
+        watcher = _LogWatcher(log_path, progress, deadline=deadline)
         watcher.start()
+        stopped = False
         try:
-            prob.solve(_cbc(opts, log_path, cbc_options))
+            try:
+                prob.solve(_cbc(opts, log_path, cbc_options))
+            except pulp.PulpSolverError:
+                if not watcher.stopped:
+                    raise
+                stopped = True  # (PuLP reads no solution from a stopped CBC)
             log_text = Path(log_path).read_text(errors="replace")
         finally:
             watcher.done.set()
+            watcher.join()
             Path(log_path).unlink(missing_ok=True)
         seconds = time.perf_counter() - start
-        has_plan = prob.sol_status in (pulp.LpSolutionOptimal, pulp.LpSolutionIntegerFeasible)
-        if prob.status == pulp.LpStatusInfeasible:
+        has_plan = not stopped and prob.sol_status in (
+            pulp.LpSolutionOptimal,
+            pulp.LpSolutionIntegerFeasible,
+        )
+        if stopped:
+            over = seconds - (opts.time_limit_s or 0.0)
+            progress(f"CBC stopped from outside, {over:.1f} s past its time limit")
+            status = "time_limit"
+        elif prob.status == pulp.LpStatusInfeasible:
             status = "infeasible"
         elif prob.sol_status == pulp.LpSolutionOptimal:
             status = "optimal"
@@ -386,7 +459,7 @@ def solve_network(
         if start is not None:
             if relaxed is not None and start[1] is not None:
                 _fix_by_reduced_cost(model, relaxed, start[2], progress)
-            elif _flow_fixing_pays(params, requested, start):
+            elif _flow_fixing_pays(params, requested, start, _left(opts, t_run), build_seconds):
                 start, allowed = _narrow_by_flow_relaxation(
                     model, data, d, params, start, _left(opts, t_run), progress
                 )
@@ -401,12 +474,30 @@ def solve_network(
                 model = _narrowed_model(model, data, d, params, allowed, progress)
             model.set_start(start[0], start[1])
         left = _left(opts, t_run)
-        progress(f"solving with {opts.name}{_limit_text(left, opts)}")
-        stats = run_solver(model, left, progress)
+        if start is not None and _no_time_to_solve(left, build_seconds):
+            progress(
+                f"{left.time_limit_s or 0.0:.1f} s left of the {opts.time_limit_s:g} s limit, "
+                f"less than handing the model to {opts.name} takes: the starting plan stands"
+            )
+            stats = SolveStats(
+                opts.name, "time_limit", None, None, None, 0.0, build_seconds, model.formulation
+            )
+        else:
+            progress(f"solving with {opts.name}{_limit_text(left, opts)}")
+            stats = run_solver(model, left, progress)
         stats = _run_facts(
             dataclasses.replace(stats, build_seconds=build_seconds), opts, start_seconds
         )
         hubs, assign = model.open_hubs(), model.allocation()
+        if stats.objective is None and stats.status == "time_limit" and start is not None:
+            # The solver found nothing better within the limit (or was
+            # stopped at it): the starting plan is the best plan in hand.
+            hubs, assign = list(start[0]), start[1]
+            cost = start[2]
+            if not np.isfinite(cost):  # given hubs, multiple allocation: price them
+                cost = evaluate_plan(data, d, params, hubs, assign, stats).costs["total"]
+            stats = dataclasses.replace(stats, objective=cost, best_bound=None, gap=None)
+            progress("no plan from the solver within the time limit: reporting the starting plan")
     if stats.status == "infeasible":
         raise InfeasibleError(
             "no plan satisfies the constraints: check sort capacities against volumes, "
@@ -547,10 +638,24 @@ def _fix_by_reduced_cost(
 LP_SHARE = 0.5
 
 
+def _no_time_to_solve(left: SolverParams, build_seconds: float) -> bool:
+    """Too little of the time limit left to start the MILP solver at all.
+
+    Handing a model over (PuLP writes it out for CBC, or copies it into
+    HiGHS) takes about as long as building it (AP, 100 sites, flow model:
+    14 s), and neither solver can be stopped before it has the whole model.
+    ``left`` holds the time left of the run (s); ``build_seconds``, the
+    model's build time (s).
+    """
+    return left.time_limit_s is not None and left.time_limit_s <= max(0.5, build_seconds)
+
+
 def _flow_fixing_pays(
     params: HubModelParams,
     requested: str,
     start: Start,
+    left: SolverParams | None = None,
+    build_seconds: float = 0.0,
 ) -> bool:
     """Fix allocations by the flow model's own relaxation before its MILP.
 
@@ -559,13 +664,22 @@ def _flow_fixing_pays(
     not CBC asked for by name (that choice must reach CBC unaided; the
     cross-checks depend on it). With sort capacities the LP has them too
     (AP capacitated, 25 sites, tight fixed costs and capacities: 69 s ->
-    15 s).
+    15 s). Not when less than twice the model's build time
+    (``build_seconds``, s) is left of the run (``left``): copying the model
+    into HiGHS takes about that long before the LP's own time limit starts
+    to count (AP, 100 sites, 20 s limit: 15 s for an LP given 1 s).
     """
+    short = (
+        left is not None
+        and left.time_limit_s is not None
+        and left.time_limit_s < 2.0 * build_seconds
+    )
     return (
         params.allocation == "single"
         and requested in ("auto", "highs")
         and start[1] is not None
         and bool(np.isfinite(start[2]))
+        and not short
     )
 
 
