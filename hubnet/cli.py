@@ -125,7 +125,8 @@ def solve(
     if not quiet:
         _err.print(
             f"[bold]{stats.status}[/bold]: {len(sol.hubs)} hubs ({', '.join(sol.hub_ids)}), "
-            f"cost {sol.costs['total']:,.2f} per day, gap {100 * (stats.gap or 0):.4f} %"
+            f"cost {sol.costs['total']:,.2f} per day, "
+            + (f"gap {100 * stats.gap:.4f} %" if stats.gap is not None else "no bound proven")
         )
         _err.print(f"wrote {path}")
     raise typer.Exit(EXIT_OK)

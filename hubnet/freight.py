@@ -1654,11 +1654,12 @@ def _solve_model(
         if opts.time_limit_s is not None:
             raise NoSolutionError(f"no plan found within the time limit of {opts.time_limit_s:g} s")
         raise SolverError(f"{opts.name} returned no plan")
-    say(
-        f"{stats.status}: {goal} {stats.objective:,.2f}, bound "
-        f"{stats.best_bound if stats.best_bound is not None else float('nan'):,.2f}, "
-        f"gap {100 * (stats.gap or 0):.4f} % in {stats.solve_seconds:.1f} s"
+    proven = (
+        f"bound {stats.best_bound:,.2f}, gap {100 * stats.gap:.4f} %"
+        if stats.best_bound is not None and stats.gap is not None
+        else "no bound proven yet"
     )
+    say(f"{stats.status}: {goal} {stats.objective:,.2f}, {proven} in {stats.solve_seconds:.1f} s")
     return model, stats
 
 

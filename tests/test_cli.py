@@ -674,6 +674,11 @@ def test_tiny_time_limit_is_reported_honestly(tmp_path: Path) -> None:
         assert summary["gap"] is not None and summary["gap"] <= 1e-6
     if summary["best_bound"] is not None:
         assert summary["best_bound"] <= summary["objective"] * (1 + 1e-9)
+    else:
+        # No bound: the last line must not claim a gap of 0 %.
+        assert summary["gap"] is None
+        assert "no bound proven" in result.stderr
+        assert "gap 0.0000 %" not in result.stderr
 
 
 @pytest.mark.parametrize("command", ["solve", "sweep", "frontier", "report", "map"])
