@@ -30,6 +30,8 @@ from hubnet.config import HubModelParams, SolverName, SolverParams
 from hubnet.data import NetworkData
 from hubnet.errors import InfeasibleError, NoSolutionError, SolverError
 from hubnet.heuristics import allocate_to_hubs, single_allocation_cost, starting_plan
+from hubnet.hubsets import MAX_WORK as ENUMERATION_MAX_WORK
+from hubnet.hubsets import cheapest_hub_set, enumeration_work
 from hubnet.model import (
     HubModel,
     build_model,
@@ -417,6 +419,10 @@ def solve_network(
     check_start_hubs(data, start_hubs)
     if params.hubs == 1 and not params.capacitated:
         return _solve_one_hub(data, d, params, opts, scenario, progress)
+    if requested == "auto" and params.formulation == "auto":
+        enumerated = _solve_by_enumeration(data, d, params, opts, scenario, progress)
+        if enumerated is not None:
+            return enumerated
     relaxed: PathRelaxation | None = None
     path_model: PathModel | None = None
     if _path_relaxation_first(data, params, requested):
@@ -532,6 +538,34 @@ def _run_facts(stats: SolveStats, opts: SolverParams, start_seconds: float) -> S
     )
 
 
+def _proven(
+    solver: str,
+    cost: float,
+    solve_seconds: float,
+    formulation: str,
+    opts: SolverParams,
+    *,
+    log: str,
+    build_seconds: float = 0.0,
+) -> SolveStats:
+    """Stats of a plan proven optimal without a MILP solver's own proof.
+
+    ``cost`` is the plan's cost and its bound (currency per day); times in s.
+    """
+    return SolveStats(
+        solver=solver,
+        status="optimal",
+        objective=cost,
+        best_bound=cost,
+        gap=0.0,
+        solve_seconds=solve_seconds,
+        build_seconds=build_seconds,
+        formulation=formulation,
+        options={"time_limit_s": opts.time_limit_s, "gap": opts.gap, "threads": opts.threads},
+        log=log,
+    )
+
+
 def _solve_one_hub(
     data: NetworkData,
     d: np.ndarray,
@@ -554,16 +588,12 @@ def _solve_one_hub(
     best = int(np.argmin(costs))
     hub, cost = cand[best], float(costs[best])
     seconds = time.perf_counter() - t0
-    stats = SolveStats(
-        solver="enumeration",
-        status="optimal",
-        objective=cost,
-        best_bound=cost,
-        gap=0.0,
-        solve_seconds=seconds,
-        build_seconds=0.0,
-        formulation="one hub: every candidate priced",
-        options={"time_limit_s": opts.time_limit_s, "gap": opts.gap, "threads": opts.threads},
+    stats = _proven(
+        "enumeration",
+        cost,
+        seconds,
+        "one hub: every candidate priced",
+        opts,
         log=(
             f"One hub asked: each of the {len(cand)} candidate hubs priced with every site "
             f"allocated to it; the cheapest, {data.sites[hub].id}, costs {cost:.6f} "
@@ -573,6 +603,49 @@ def _solve_one_hub(
     progress(f"optimal: one hub, {len(cand)} candidates priced, cost {cost:,.2f}")
     assign = np.full(data.n, hub) if params.allocation == "single" else None
     return evaluate_plan(data, d, params, [hub], assign, stats, scenario=scenario)
+
+
+def _solve_by_enumeration(
+    data: NetworkData,
+    d: np.ndarray,
+    params: HubModelParams,
+    opts: SolverParams,
+    scenario: str,
+    progress: Progress,
+) -> Solution | None:
+    """Multiple allocation, p hubs, few enough hub sets: price them all.
+
+    See :mod:`hubnet.hubsets`. Only when the solver and the formulation
+    are left to hubnet (``auto``): a solver or formulation named by the
+    user (and the second-solver cross-checks) gets the model. Returns ``None`` when enumeration does
+    not apply, would price more than :data:`~hubnet.hubsets.MAX_WORK`
+    (hub sets x OD pairs), or runs out of the time limit.
+    """
+    work = enumeration_work(data, params)
+    if work is None or work > ENUMERATION_MAX_WORK:
+        return None
+    progress(f"pricing every set of {params.hubs} hubs (multiple allocation)")
+    found = cheapest_hub_set(data, d, params, time_limit_s=opts.time_limit_s)
+    if found is None:
+        progress("hub sets not all priced within the time limit: solving the model instead")
+        return None
+    stats = _proven(
+        "enumeration",
+        found.cost,
+        found.seconds,
+        f"{params.hubs} hubs, multiple allocation: every hub set priced",
+        opts,
+        log=(
+            f"Multiple allocation with {params.hubs} hubs: each of the {found.sets} hub sets "
+            "priced with every OD pair on its cheapest route through the set; the cheapest, "
+            f"{', '.join(data.sites[h].id for h in found.hubs)}, costs {found.cost:.6f} per day "
+            f"({found.seconds:.3f} s).\n"
+        ),
+    )
+    progress(
+        f"optimal: {found.sets} hub sets priced in {found.seconds:.2f} s, cost {found.cost:,.2f}"
+    )
+    return evaluate_plan(data, d, params, found.hubs, None, stats, scenario=scenario)
 
 
 def _left(opts: SolverParams, t_run: float) -> SolverParams:
@@ -932,16 +1005,13 @@ def _solve_by_path_relaxation(
             f"({relaxed.solve_seconds:.1f} s): branching on it"
         )
         return None, relaxed, model
-    stats = SolveStats(
-        solver="highs",
-        status="optimal",
-        objective=relaxed.objective,
-        best_bound=relaxed.objective,
-        gap=0.0,
-        solve_seconds=relaxed.solve_seconds,
+    stats = _proven(
+        "highs",
+        relaxed.objective,
+        relaxed.solve_seconds,
+        "single-allocation path relaxation (integral, so optimal)",
+        opts,
         build_seconds=relaxed.build_seconds,
-        formulation="single-allocation path relaxation (integral, so optimal)",
-        options={"time_limit_s": opts.time_limit_s, "gap": opts.gap, "threads": opts.threads},
         log=(
             "HiGHS solved the linear relaxation of the single-allocation path formulation "
             f"({relaxed.columns} columns) in {relaxed.solve_seconds:.3f} s: objective "

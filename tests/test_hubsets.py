@@ -1,0 +1,125 @@
+"""Multiple allocation with p hubs by pricing every hub set (hubnet.hubsets).
+
+References outside hubnet's model code: tests/bruteforce.py (every hub set
+tried, written from the problem definition), the published AP optima
+(Ernst and Krishnamoorthy 1998, ../shared/reference/hub_benchmarks) and
+the MILP solved by HiGHS and CBC.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+
+import numpy as np
+import pytest
+from benchdata import ap_network, ap_params, euclid
+from bruteforce import brute_force
+from test_model import _multiple_and_enumerated, _random_network
+
+from hubnet.config import SolverParams
+from hubnet.hubsets import cheapest_hub_set, enumeration_work
+from hubnet.solve import solve_network
+
+
+def _forcing(data, k):  # type: ignore[no-untyped-def]
+    """``data`` with site k forced open as a hub."""
+    sites = tuple(
+        dataclasses.replace(s, hub_status="open") if i == k else s for i, s in enumerate(data.sites)
+    )
+    return dataclasses.replace(data, sites=sites)
+
+
+@pytest.mark.parametrize("seed", range(10))
+@pytest.mark.parametrize("p", [2, 3, 4])
+def test_every_hub_set_priced_matches_brute_force(seed: int, p: int) -> None:
+    # Random planar networks with hub fixed costs, handling costs and one
+    # closed site; tests/bruteforce.py is the reference.
+    data, xy, extra = _random_network(seed, n=8)
+    d = np.sqrt(((xy[:, None] - xy[None]) ** 2).sum(-1))
+    params, want = _multiple_and_enumerated(data, d, p)
+    found = cheapest_hub_set(data, d, params)
+    assert found is not None
+    assert found.cost == pytest.approx(want, rel=1e-9)
+    assert len(found.hubs) == p
+    assert all(data.sites[h].is_candidate for h in found.hubs)
+    sol = solve_network(data, d, params, SolverParams())
+    assert sol.stats.solver == "enumeration"
+    assert sol.stats.status == "optimal"
+    assert sol.costs["total"] == pytest.approx(want, rel=1e-9)
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_forced_open_hubs_are_in_the_set(seed: int) -> None:
+    data, xy, extra = _random_network(seed, n=8)
+    cand: list[int] = extra["candidates"]  # type: ignore[assignment]
+    d = np.sqrt(((xy[:, None] - xy[None]) ** 2).sum(-1))
+    k = cand[seed % len(cand)]
+    forced = _forcing(data, k)
+    params, _ = _multiple_and_enumerated(forced, d, 3)
+    want, _hubs = brute_force(
+        d,
+        data.flow_matrix(),
+        allocation="multiple",
+        p=3,
+        rate=0.5,
+        alpha=0.6,
+        delta=1.2,
+        fixed=np.array([s.hub_fixed_cost for s in data.sites]),
+        handling=np.array([s.handling_cost for s in data.sites]),
+        candidates=cand,
+        forced=[k],
+    )
+    found = cheapest_hub_set(forced, d, params)
+    assert found is not None
+    assert k in found.hubs
+    assert found.cost == pytest.approx(want, rel=1e-9)
+    # The same answer from the MILP (HiGHS named: no enumeration).
+    milp = solve_network(forced, d, params, SolverParams(name="highs"))
+    assert milp.stats.solver == "highs"
+    assert milp.costs["total"] == pytest.approx(want, rel=1e-7)
+
+
+def test_ap25_p5_matches_the_published_optimum_and_cbc() -> None:
+    # Published optimum, AP n = 25, p = 5, multiple allocation: 120581.99,
+    # hubs 2 8 17 18 20 (1-based; Ernst and Krishnamoorthy 1998, via
+    # published_optima.csv). CBC on the model is the second opinion.
+    data = ap_network(25)
+    d = euclid(data)
+    params = ap_params("multiple", 5)
+    sol = solve_network(data, d, params, SolverParams())
+    assert sol.stats.solver == "enumeration"
+    assert abs(sol.costs["total"] - 120581.99) <= 0.005
+    assert sorted(int(h) for h in sol.hub_ids) == [2, 8, 17, 18, 20]
+    cbc = solve_network(data, d, params, SolverParams(name="cbc"))
+    assert cbc.stats.solver == "cbc"
+    assert cbc.costs["total"] == pytest.approx(sol.costs["total"], rel=1e-7)
+
+
+def test_enumeration_applies_only_where_it_is_exact() -> None:
+    data = ap_network(10)
+    assert enumeration_work(data, ap_params("multiple", 3)) == 120 * 100  # C(10, 3) n^2
+    assert enumeration_work(data, ap_params("single", 3)) is None
+    assert enumeration_work(data, ap_params("multiple", None)) is None  # free hub count
+    capacitated = dataclasses.replace(ap_params("multiple", 3), capacitated=True)
+    assert enumeration_work(data, capacitated) is None
+
+
+def test_out_of_time_gives_way_to_the_model() -> None:
+    data = ap_network(25)
+    params = ap_params("multiple", 5)
+    assert cheapest_hub_set(data, euclid(data), params, time_limit_s=0.0) is None
+
+
+def test_too_many_sets_go_to_the_model() -> None:
+    # AP n = 50, p = 5: C(50, 5) 2,500 pairs is over 5e9, far above the
+    # work allowed, so the run goes to the MILP route (Benders).
+    data = ap_network(50)
+    params = ap_params("multiple", 5)
+    work = enumeration_work(data, params)
+    assert work is not None and work > 100 * 50_000_000
+    lines: list[str] = []
+    sol = solve_network(
+        data, euclid(data), params, SolverParams(time_limit_s=2.0), progress=lines.append
+    )
+    assert sol.stats.solver != "enumeration"
+    assert not any("pricing every set" in line for line in lines)
