@@ -34,6 +34,9 @@ MAX_WORK = 200_000_000
 #: the per-call overhead dominates (AP, 25 sites, 5 hubs: 64 instead of 16
 #: took the enumeration from 1.06 s to 0.62-0.93 s).
 LEAF_CHUNK = 64
+#: Work priced per second, for deciding whether the enumeration fits a
+#: time limit: half the rate measured on the benchmark machine (1e8).
+WORK_PER_S = 50_000_000
 
 
 @dataclass(frozen=True)
@@ -49,7 +52,7 @@ class HubSetOptimum:
     sets
         Number of hub sets in the problem, C(q - forced, p - forced).
     priced
-        Hub sets priced one by one (the others were cut as a group).
+        Hub sets priced (all of them, unless the time ran out).
     seconds
         Wall time, s.
     """
@@ -154,6 +157,8 @@ def cheapest_hub_set(
                 best_cost, best_hubs = float(costs[j]), [*chosen, xs[j]]
             return
         for i in range(idx, len(free) - left + 1):
+            if out_of_time:
+                return
             x = free[i]
             walk(moves.add(state, x), [*chosen, x], i + 1, left - 1, fixed_so_far + float(fixed[x]))
 

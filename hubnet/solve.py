@@ -13,6 +13,7 @@ import contextlib
 import dataclasses
 import os
 import re
+import shutil
 import tempfile
 import threading
 import time
@@ -31,6 +32,7 @@ from hubnet.data import NetworkData
 from hubnet.errors import InfeasibleError, NoSolutionError, SolverError
 from hubnet.heuristics import allocate_to_hubs, single_allocation_cost, starting_plan
 from hubnet.hubsets import MAX_WORK as ENUMERATION_MAX_WORK
+from hubnet.hubsets import WORK_PER_S as ENUMERATION_WORK_PER_S
 from hubnet.hubsets import cheapest_hub_set, enumeration_work
 from hubnet.model import (
     HubModel,
@@ -148,17 +150,27 @@ CBC_GRACE_S = 1.0
 CBC_GRACE_SHARE = 0.05
 
 
-def _stop_cbc_children() -> bool:
-    """Terminate (then kill) the CBC processes this process started.
+def _stop_cbc_children(marker: str) -> bool:
+    """Terminate (then kill) the CBC processes of this run.
 
-    Returns whether any was found. PuLP runs CBC as a child process and
-    waits for it; CBC checks its own time limit only between nodes, never
-    inside the root LP and its cuts, so on large models a run asked for 3 s
-    went on for 40 s (AP, 50 sites, flow model) and one asked for 20 s for
-    over 10 minutes (100 sites). A SIGINT does not stop the root LP either.
+    A CBC of this run is a child process whose command line names
+    ``marker`` (the run's own folder for PuLP's files), so the CBC of
+    another solve in the same process is left alone. Returns whether any
+    was found. PuLP runs CBC as a child process and waits for it; CBC
+    checks its own time limit only between nodes, never inside the root LP
+    and its cuts, so on large models a run asked for 3 s went on for 40 s
+    (AP, 50 sites, flow model) and one asked for 20 s for over 10 minutes
+    (100 sites). A SIGINT does not stop the root LP either.
     """
-    me = psutil.Process()
-    found = [c for c in me.children(recursive=True) if "cbc" in c.name().lower()]
+    found = []
+    try:
+        children = psutil.Process().children(recursive=True)
+    except psutil.Error:
+        return False
+    for c in children:
+        with contextlib.suppress(psutil.Error):
+            if any(marker in part for part in c.cmdline()):
+                found.append(c)
     for c in found:
         with contextlib.suppress(psutil.Error):
             c.terminate()
@@ -172,8 +184,10 @@ def _stop_cbc_children() -> bool:
 class _LogWatcher(threading.Thread):
     """Reads CBC's log while it runs and reports its latest progress line.
 
-    With a ``deadline`` (a ``time.perf_counter()`` value) it also stops CBC
-    once the deadline has passed, and sets :attr:`stopped`.
+    With a ``deadline`` (a ``time.perf_counter()`` value) it also stops the
+    CBC whose command line names ``marker`` once the deadline has passed
+    (waiting for it to start if PuLP is still writing the model out), and
+    sets :attr:`stopped`.
     """
 
     def __init__(
@@ -182,12 +196,14 @@ class _LogWatcher(threading.Thread):
         progress: Progress,
         every_s: float = 5.0,
         deadline: float | None = None,
+        marker: str = "",
     ) -> None:
         super().__init__(daemon=True)
         self.path = path
         self.report = progress
         self.every_s = every_s
         self.deadline = deadline
+        self.marker = marker
         self.done = threading.Event()
         self.stopped = False
         self._next_report = time.perf_counter() + every_s
@@ -202,9 +218,10 @@ class _LogWatcher(threading.Thread):
         while not self.done.wait(self._wait_s()):
             now = time.perf_counter()
             if self.deadline is not None and not self.stopped and now >= self.deadline:
-                # Set first: PuLP raises as soon as CBC is gone.
+                # Set first: PuLP raises as soon as CBC is gone. Reset when
+                # CBC has not started yet, to look again in 0.05 s.
                 self.stopped = True
-                _stop_cbc_children()
+                self.stopped = _stop_cbc_children(self.marker)
             if now < self._next_report:
                 continue
             self._next_report = now + self.every_s
@@ -319,21 +336,30 @@ def run_solver(
         deadline = None
         if opts.time_limit_s is not None:
             deadline = start + opts.time_limit_s * (1 + CBC_GRACE_SHARE) + CBC_GRACE_S
-        watcher = _LogWatcher(log_path, progress, deadline=deadline)
+        # PuLP's files for this run in a folder of their own: it names the
+        # run's CBC for the watcher, and goes with whatever a stopped CBC
+        # left behind (PuLP deletes its files only after a clean exit).
+        tmp = tempfile.mkdtemp(prefix="hubnet-cbc-")
+        watcher = _LogWatcher(log_path, progress, deadline=deadline, marker=tmp)
         watcher.start()
         stopped = False
         try:
+            solver = _cbc(opts, log_path, cbc_options)
+            solver.tmpDir = tmp
             try:
-                prob.solve(_cbc(opts, log_path, cbc_options))
+                prob.solve(solver)
             except pulp.PulpSolverError:
                 if not watcher.stopped:
                     raise
-                stopped = True  # (PuLP reads no solution from a stopped CBC)
+            # PuLP reads no solution from a stopped CBC (and may not notice:
+            # psutil can reap the process before PuLP sees its exit code).
+            stopped = watcher.stopped
             log_text = Path(log_path).read_text(errors="replace")
         finally:
             watcher.done.set()
             watcher.join()
             Path(log_path).unlink(missing_ok=True)
+            shutil.rmtree(tmp, ignore_errors=True)
         seconds = time.perf_counter() - start
         has_plan = not stopped and prob.sol_status in (
             pulp.LpSolutionOptimal,
@@ -486,7 +512,15 @@ def solve_network(
                 f"less than handing the model to {opts.name} takes: the starting plan stands"
             )
             stats = SolveStats(
-                opts.name, "time_limit", None, None, None, 0.0, build_seconds, model.formulation
+                opts.name,
+                "time_limit",
+                None,
+                None,
+                None,
+                0.0,
+                build_seconds,
+                model.formulation,
+                options=_options(left),
             )
         else:
             progress(f"solving with {opts.name}{_limit_text(left, opts)}")
@@ -495,7 +529,12 @@ def solve_network(
             dataclasses.replace(stats, build_seconds=build_seconds), opts, start_seconds
         )
         hubs, assign = model.open_hubs(), model.allocation()
-        if stats.objective is None and stats.status == "time_limit" and start is not None:
+        if (
+            stats.objective is None
+            and stats.status == "time_limit"
+            and start is not None
+            and (start[1] is not None or params.allocation == "multiple")
+        ):
             # The solver found nothing better within the limit (or was
             # stopped at it): the starting plan is the best plan in hand.
             hubs, assign = list(start[0]), start[1]
@@ -561,9 +600,14 @@ def _proven(
         solve_seconds=solve_seconds,
         build_seconds=build_seconds,
         formulation=formulation,
-        options={"time_limit_s": opts.time_limit_s, "gap": opts.gap, "threads": opts.threads},
+        options=_options(opts),
         log=log,
     )
+
+
+def _options(opts: SolverParams) -> dict[str, object]:
+    """The solver options as summary.json reports them."""
+    return {"time_limit_s": opts.time_limit_s, "gap": opts.gap, "threads": opts.threads}
 
 
 def _solve_one_hub(
@@ -617,12 +661,19 @@ def _solve_by_enumeration(
 
     See :mod:`hubnet.hubsets`. Only when the solver and the formulation
     are left to hubnet (``auto``): a solver or formulation named by the
-    user (and the second-solver cross-checks) gets the model. Returns ``None`` when enumeration does
-    not apply, would price more than :data:`~hubnet.hubsets.MAX_WORK`
-    (hub sets x OD pairs), or runs out of the time limit.
+    user (and the second-solver cross-checks) gets the model. Returns
+    ``None`` when enumeration does not apply, would price more than
+    :data:`~hubnet.hubsets.MAX_WORK` (hub sets x OD pairs), would likely
+    take over half the time limit (at
+    :data:`~hubnet.hubsets.WORK_PER_S`), or runs out of it.
     """
     work = enumeration_work(data, params)
     if work is None or work > ENUMERATION_MAX_WORK:
+        return None
+    limit = opts.time_limit_s
+    if limit is not None and work / ENUMERATION_WORK_PER_S > 0.5 * limit:
+        # Likely not to finish: the model, with its start and bound, gets
+        # the time instead of an enumeration cut short.
         return None
     progress(f"pricing every set of {params.hubs} hubs (multiple allocation)")
     found = cheapest_hub_set(data, d, params, time_limit_s=opts.time_limit_s)

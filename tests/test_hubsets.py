@@ -73,7 +73,7 @@ def test_forced_open_hubs_are_in_the_set(seed: int) -> None:
     assert found is not None
     assert k in found.hubs
     assert found.cost == pytest.approx(want, rel=1e-9)
-    # The same answer from the MILP (HiGHS named: no enumeration).
+    # The same answer from Benders on HiGHS (a named solver: no enumeration).
     milp = solve_network(forced, d, params, SolverParams(name="highs"))
     assert milp.stats.solver == "highs"
     assert milp.costs["total"] == pytest.approx(want, rel=1e-7)
@@ -82,7 +82,8 @@ def test_forced_open_hubs_are_in_the_set(seed: int) -> None:
 def test_ap25_p5_matches_the_published_optimum_and_cbc() -> None:
     # Published optimum, AP n = 25, p = 5, multiple allocation: 120581.99,
     # hubs 2 8 17 18 20 (1-based; Ernst and Krishnamoorthy 1998, via
-    # published_optima.csv). CBC on the model is the second opinion.
+    # published_optima.csv). CBC (the Benders master on CBC) is the second
+    # opinion.
     data = ap_network(25)
     d = euclid(data)
     params = ap_params("multiple", 5)
@@ -123,3 +124,23 @@ def test_too_many_sets_go_to_the_model() -> None:
     )
     assert sol.stats.solver != "enumeration"
     assert not any("pricing every set" in line for line in lines)
+
+
+def test_a_short_time_limit_leaves_the_time_to_the_model() -> None:
+    # AP n = 40, p = 4 (1.5e8 set-pairs, about 1.5 s to enumerate here) with
+    # a 1 s limit: enumeration would likely not finish in half of it, so
+    # the run goes to the model at once and keeps within its limit with a
+    # plan no cheaper than the published optimum (140682.74, Ernst and
+    # Krishnamoorthy 1998).
+    data = ap_network(40)
+    lines: list[str] = []
+    sol = solve_network(
+        data,
+        euclid(data),
+        ap_params("multiple", 4),
+        SolverParams(time_limit_s=1.0),
+        progress=lines.append,
+    )
+    assert sol.stats.solver != "enumeration"
+    assert not any("pricing every set" in line for line in lines)
+    assert sol.costs["total"] >= 140682.74 - 0.005

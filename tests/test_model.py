@@ -10,7 +10,9 @@ for every p and transfer factor, and by a second solver.
 
 from __future__ import annotations
 
+import tempfile
 import time
+from pathlib import Path
 
 import numpy as np
 import psutil
@@ -253,7 +255,9 @@ def _cbc_children() -> list[str]:
     ]
 
 
-def test_cbc_is_stopped_from_outside_at_its_time_limit() -> None:
+def test_cbc_is_stopped_from_outside_at_its_time_limit(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
     # AP n = 50, p = 5, single allocation, flow model with the published
     # optimum's neighbourhood as start (Ernst and Krishnamoorthy 1996: 132366.95).
     # CBC checks its time limit only between nodes; its root LP here takes
@@ -267,15 +271,19 @@ def test_cbc_is_stopped_from_outside_at_its_time_limit() -> None:
     assert found is not None
     model.set_start(found[0], found[1])
     lines: list[str] = []
+    # A temporary folder of this test's own (other runs may share /tmp).
+    monkeypatch.setattr(tempfile, "tempdir", str(tmp_path))
     t0 = time.perf_counter()
     stats = run_solver(model, SolverParams(name="cbc", time_limit_s=1.0, threads=1), lines.append)
     wall = time.perf_counter() - t0
+    # PuLP's model files (large here) and the log go with the run's folder.
+    assert list(tmp_path.iterdir()) == []
     assert any("CBC stopped from outside" in line for line in lines), lines
     assert stats.status == "time_limit"
     assert stats.objective is None  # PuLP reads nothing from a stopped CBC
     # 1 s, the grace (1 s + 5 %), writing the model out (about 1 s here):
-    # generous, and far under the root LP's 30 s.
-    assert wall < 10.0, wall
+    # generous (a loaded machine), and far under the root LP's 30 s.
+    assert wall < 20.0, wall
     assert _cbc_children() == []
 
 
@@ -305,7 +313,7 @@ def test_a_run_that_cbc_cannot_finish_reports_the_starting_plan() -> None:
     assert sol.stats.objective == pytest.approx(sol.costs["total"], rel=1e-9)
     assert sol.costs["total"] >= 132366.95 - 0.005
     assert sol.stats.best_bound is None
-    assert wall < 15.0, wall
+    assert wall < 25.0, wall
     assert _cbc_children() == []
 
 
@@ -426,3 +434,36 @@ def test_a_warm_start_that_does_not_fit_is_searched_past() -> None:
     assert sol.stats.status == "optimal" and len(sol.hubs) == 3
     assert abs(sol.costs["total"] - 148048.30) <= 0.005
     assert sol.stats.best_bound is not None and sol.stats.best_bound <= sol.costs["total"]
+
+
+def test_the_watcher_stops_only_this_runs_cbc_even_if_it_starts_late() -> None:
+    # The deadline has passed before the solver process exists (PuLP is
+    # still writing the model out): the watcher keeps looking and stops it
+    # once it starts. A process of another run (no marker on its command
+    # line) is left alone. Plain Python processes stand in for CBC here.
+    import subprocess
+    import sys
+
+    from hubnet.solve import _LogWatcher
+
+    sleeper = [sys.executable, "-c", "import time; time.sleep(60)"]
+    marker = f"hubnet-test-marker-{time.perf_counter_ns()}"
+    watcher = _LogWatcher(
+        "/nonexistent.log", lambda _: None, deadline=time.perf_counter(), marker=marker
+    )
+    watcher.start()
+    other = subprocess.Popen([*sleeper, "another-run"])
+    try:
+        time.sleep(0.5)
+        assert not watcher.stopped  # nothing of this run to stop yet
+        late = subprocess.Popen([*sleeper, marker])
+        t0 = time.perf_counter()
+        late.wait(timeout=10)  # (its exit code may be reaped by the watcher)
+        assert time.perf_counter() - t0 < 10.0  # stopped from outside, not its 60 s
+        assert watcher.stopped
+        assert other.poll() is None  # still running
+    finally:
+        watcher.done.set()
+        watcher.join()
+        other.kill()
+        other.wait()
