@@ -47,7 +47,13 @@ from hubnet._highs import pass_columns, quiet_highs, use_threads
 from hubnet.config import HubModelParams, SolverParams
 from hubnet.data import NetworkData
 from hubnet.heuristics import polish_multiple
-from hubnet.solution import RunStatus, SolveStats, best_hub_pairs, unit_path_costs
+from hubnet.solution import (
+    RunStatus,
+    SolveStats,
+    best_hub_pairs,
+    solver_options,
+    unit_path_costs,
+)
 
 Progress = Callable[[str], None]
 _INF = highspy.kHighsInf
@@ -713,9 +719,7 @@ def solve_multiple_benders(
         build_seconds=0.0,
         formulation="multiple-allocation Benders (EK98 flows projected out)",
         options={
-            "time_limit_s": opts.time_limit_s,
-            "gap": opts.gap,
-            "threads": opts.threads,
+            **solver_options(opts),
             "lp_rounds": it,
             "integer_rounds": rounds,
             "cuts": n_cuts,

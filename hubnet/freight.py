@@ -1654,12 +1654,10 @@ def _solve_model(
         if opts.time_limit_s is not None:
             raise NoSolutionError(f"no plan found within the time limit of {opts.time_limit_s:g} s")
         raise SolverError(f"{opts.name} returned no plan")
-    proven = (
-        f"bound {stats.best_bound:,.2f}, gap {100 * stats.gap:.4f} %"
-        if stats.best_bound is not None and stats.gap is not None
-        else "no bound proven yet"
+    say(
+        f"{stats.status}: {goal} {stats.objective:,.2f}, {stats.bound_text()} "
+        f"in {stats.solve_seconds:.1f} s"
     )
-    say(f"{stats.status}: {goal} {stats.objective:,.2f}, {proven} in {stats.solve_seconds:.1f} s")
     return model, stats
 
 

@@ -50,9 +50,7 @@ class HubSetOptimum:
     cost
         Its cost, currency per day (routing, handling and hub fixed costs).
     sets
-        Number of hub sets in the problem, C(q - forced, p - forced).
-    priced
-        Hub sets priced (all of them, unless the time ran out).
+        Number of hub sets priced: all of them, C(q - forced, p - forced).
     seconds
         Wall time, s.
     """
@@ -60,7 +58,6 @@ class HubSetOptimum:
     hubs: list[int]
     cost: float
     sets: int
-    priced: int
     seconds: float
 
 
@@ -124,12 +121,11 @@ def cheapest_hub_set(
     moves = _MultipleMoves(_Pricer(data, d, params))
     fixed = moves.fixed
     best_cost, best_hubs = math.inf, None
-    priced = 0
     base = moves.state(forced) if forced else moves.empty()
     base_fixed = float(fixed[forced].sum())
     if need == 0:
         cost = moves.total(base[0]) + base_fixed
-        return HubSetOptimum(sorted(forced), cost, 1, 1, time.perf_counter() - t0)
+        return HubSetOptimum(sorted(forced), cost, 1, time.perf_counter() - t0)
     fixed_free = fixed[np.asarray(free, dtype=np.int64)]
 
     out_of_time = False
@@ -141,7 +137,7 @@ def cheapest_hub_set(
         left: int,
         fixed_so_far: float,
     ) -> None:
-        nonlocal best_cost, best_hubs, priced, out_of_time
+        nonlocal best_cost, best_hubs, out_of_time
         if out_of_time:
             return
         if deadline is not None and time.perf_counter() > deadline:
@@ -149,9 +145,8 @@ def cheapest_hub_set(
             return
         if left == 1:
             xs = free[idx:]
-            priced_xs = moves.with_each(state, xs, chunk=LEAF_CHUNK)
-            costs = priced_xs + fixed_so_far + fixed_free[idx:]
-            priced += len(xs)
+            priced = moves.with_each(state, xs, chunk=LEAF_CHUNK)
+            costs = priced + fixed_so_far + fixed_free[idx:]
             j = int(np.argmin(costs))
             if costs[j] < best_cost:
                 best_cost, best_hubs = float(costs[j]), [*chosen, xs[j]]
@@ -169,6 +164,5 @@ def cheapest_hub_set(
         sorted(best_hubs),
         best_cost,
         math.comb(len(free), need),
-        priced,
         time.perf_counter() - t0,
     )

@@ -296,6 +296,9 @@ def relax_path(
     # Which hubs each end of each pair may use: s_i for the pair's first
     # end, s_j for its second, (pairs, q) booleans.
     s_i, s_j = ok[iu], ok[ju]
+    # Each end's allocation columns, as (pair, hub) positions.
+    pi, ai = np.nonzero(s_i)
+    pj, bj = np.nonzero(s_j)
     n_x = n * q
     if form == "transport":
         # u[p, a, b]: rows sum_b u = x[i, a] (a in s_i), sum_a u = x[j, b] (b in s_j).
@@ -307,8 +310,6 @@ def relax_path(
         n_u = len(p_idx)
         rows += [r_pair + ri[p_idx, a_idx], r_pj + rj[p_idx, b_idx]]
         vals += [np.ones(n_u), np.ones(n_u)]
-        pi, ai = np.nonzero(s_i)
-        pj, bj = np.nonzero(s_j)
         rows += [r_pair + ri[pi, ai], r_pj + rj[pj, bj]]
         vals += [-np.ones(len(pi)), -np.ones(len(pj))]
     else:
@@ -323,8 +324,6 @@ def relax_path(
         n_u = len(p_idx)
         rows += [r_pair + ri[p_idx, a_idx], r_pair + ri[p_idx, b_idx]]
         vals += [np.ones(n_u), -np.ones(n_u)]
-        pi, ai = np.nonzero(s_i)
-        pj, bj = np.nonzero(s_j)
         rows += [r_pair + ri[pi, ai], r_pair + rj[pj, bj]]
         vals += [-np.ones(len(pi)), np.ones(len(pj))]
     cost_u = cu[p_idx, a_idx, b_idx]

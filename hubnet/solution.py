@@ -15,7 +15,7 @@ from typing import Literal
 
 import numpy as np
 
-from hubnet.config import HubModelParams
+from hubnet.config import HubModelParams, SolverParams
 from hubnet.data import NetworkData
 
 RunStatus = Literal["optimal", "time_limit", "infeasible", "error"]
@@ -63,6 +63,17 @@ class SolveStats:
     options: Mapping[str, object] = field(default_factory=dict)
     log: str = field(default="", repr=False)
     start_seconds: float = 0.0
+
+    def bound_text(self) -> str:
+        """``bound 1,234.00, gap 0.0100 %``, or ``no bound proven yet``, for progress lines."""
+        if self.best_bound is None:
+            return "no bound proven yet"
+        return f"bound {self.best_bound:,.2f}, gap {100 * (self.gap or 0.0):.4f} %"
+
+
+def solver_options(opts: SolverParams) -> dict[str, object]:
+    """The solver options as summary.json reports them: time limit (s), gap, threads."""
+    return {"time_limit_s": opts.time_limit_s, "gap": opts.gap, "threads": opts.threads}
 
 
 @dataclass(frozen=True, slots=True)

@@ -52,7 +52,7 @@ from hubnet.pathlp import (
     relaxation_columns,
     satisfies_triangle,
 )
-from hubnet.solution import RunStatus, Solution, SolveStats, evaluate_plan
+from hubnet.solution import RunStatus, Solution, SolveStats, evaluate_plan, solver_options
 
 Progress = Callable[[str], None]
 #: A starting plan: open hubs, each site's hub (``None`` for multiple
@@ -342,7 +342,6 @@ def run_solver(
         tmp = tempfile.mkdtemp(prefix="hubnet-cbc-")
         watcher = _LogWatcher(log_path, progress, deadline=deadline, marker=tmp)
         watcher.start()
-        stopped = False
         try:
             solver = _cbc(opts, log_path, cbc_options)
             solver.tmpDir = tmp
@@ -520,7 +519,7 @@ def solve_network(
                 0.0,
                 build_seconds,
                 model.formulation,
-                options=_options(left),
+                options=solver_options(left),
             )
         else:
             progress(f"solving with {opts.name}{_limit_text(left, opts)}")
@@ -553,13 +552,8 @@ def solve_network(
             raise NoSolutionError(f"no plan found within the time limit of {opts.time_limit_s:g} s")
         raise SolverError(f"{opts.name} returned no plan")
     progress(
-        f"{stats.status}: cost {stats.objective:,.2f}, "
-        + (
-            f"bound {stats.best_bound:,.2f}, gap {100 * (stats.gap or 0):.4f} %"
-            if stats.best_bound is not None
-            else "no bound proven yet"
-        )
-        + f" in {stats.solve_seconds:.1f} s"
+        f"{stats.status}: cost {stats.objective:,.2f}, {stats.bound_text()} "
+        f"in {stats.solve_seconds:.1f} s"
     )
     return evaluate_plan(data, d, params, hubs, assign, stats, scenario=scenario)
 
@@ -600,14 +594,9 @@ def _proven(
         solve_seconds=solve_seconds,
         build_seconds=build_seconds,
         formulation=formulation,
-        options=_options(opts),
+        options=solver_options(opts),
         log=log,
     )
-
-
-def _options(opts: SolverParams) -> dict[str, object]:
-    """The solver options as summary.json reports them."""
-    return {"time_limit_s": opts.time_limit_s, "gap": opts.gap, "threads": opts.threads}
 
 
 def _solve_one_hub(
@@ -778,8 +767,8 @@ def _flow_fixing_pays(
     params: HubModelParams,
     requested: str,
     start: Start,
-    left: SolverParams | None = None,
-    build_seconds: float = 0.0,
+    left: SolverParams,
+    build_seconds: float,
 ) -> bool:
     """Fix allocations by the flow model's own relaxation before its MILP.
 
@@ -793,11 +782,7 @@ def _flow_fixing_pays(
     into HiGHS takes about that long before the LP's own time limit starts
     to count (AP, 100 sites, 20 s limit: 15 s for an LP given 1 s).
     """
-    short = (
-        left is not None
-        and left.time_limit_s is not None
-        and left.time_limit_s < 2.0 * build_seconds
-    )
+    short = left.time_limit_s is not None and left.time_limit_s < 2.0 * build_seconds
     return (
         params.allocation == "single"
         and requested in ("auto", "highs")
