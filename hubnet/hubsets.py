@@ -61,9 +61,15 @@ class HubSetOptimum:
     seconds: float
 
 
-def _choices(data: NetworkData, params: HubModelParams) -> tuple[list[int], list[int], int] | None:
-    """Forced hubs, the free candidates, and how many of those to open."""
-    if params.allocation != "multiple" or params.capacitated or params.hubs is None:
+def hub_choices(
+    data: NetworkData, params: HubModelParams
+) -> tuple[list[int], list[int], int] | None:
+    """Forced hubs, the free candidates, and how many of those to open.
+
+    ``None`` unless a fixed hub count without sort capacities, or when the
+    forced hubs and the candidates cannot make that count.
+    """
+    if params.capacitated or params.hubs is None:
         return None
     cand = [k for k, s in enumerate(data.sites) if s.is_candidate]
     forced = [k for k in cand if data.sites[k].hub_status == "open"]
@@ -72,6 +78,11 @@ def _choices(data: NetworkData, params: HubModelParams) -> tuple[list[int], list
     if need < 0 or need > len(free):
         return None
     return forced, free, need
+
+
+def _choices(data: NetworkData, params: HubModelParams) -> tuple[list[int], list[int], int] | None:
+    """:func:`hub_choices` for multiple allocation, else ``None``."""
+    return hub_choices(data, params) if params.allocation == "multiple" else None
 
 
 def enumeration_work(data: NetworkData, params: HubModelParams) -> int | None:

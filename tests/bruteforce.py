@@ -123,3 +123,52 @@ def multiple_allocation_cost(
     handling = np.zeros(n) if handling is None else handling
     c, t, dist = _unit_costs(d, rate, chi, alpha, delta)
     return float(_multiple(c, t, dist, w, tuple(hubs), handling) + fixed[list(hubs)].sum())
+
+
+def single_allocation_plans(
+    d: np.ndarray,
+    w: np.ndarray,
+    p: int,
+    *,
+    rate: float = 1.0,
+    chi: float = 1.0,
+    alpha: float = 1.0,
+    delta: float = 1.0,
+    fixed: np.ndarray | None = None,
+    handling: np.ndarray | None = None,
+    candidates: list[int] | None = None,
+    forced: list[int] | None = None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Every single-allocation plan with p hubs and its cost.
+
+    Returns ``(costs, assign)``: ``costs[r]`` is plan r's cost and
+    ``assign[r, i]`` the hub (0-based index) of site i; each hub is
+    allocated to itself. Written from the definition, like
+    :func:`brute_force`.
+    """
+    n = len(d)
+    fixed = np.zeros(n) if fixed is None else fixed
+    handling = np.zeros(n) if handling is None else handling
+    cand = list(range(n)) if candidates is None else candidates
+    forced = forced or []
+    c, t, dist = _unit_costs(d, rate, chi, alpha, delta)
+    hub_t = t + handling[None, :]
+    np.fill_diagonal(hub_t, 0.0)
+    costs, plans = [], []
+    for hubs in itertools.combinations(cand, p):
+        if any(f not in hubs for f in forced):
+            continue
+        others = [i for i in range(n) if i not in hubs]
+        for choice in itertools.product(hubs, repeat=len(others)):
+            a = np.empty(n, dtype=int)
+            a[list(hubs)] = hubs
+            a[others] = choice
+            cost = sum(
+                w[i, j] * (c[i, a[i]] + handling[a[i]] + hub_t[a[i], a[j]] + dist[a[j], j])
+                for i in range(n)
+                for j in range(n)
+                if w[i, j] > 0
+            )
+            costs.append(cost + fixed[list(hubs)].sum())
+            plans.append(a)
+    return np.array(costs), np.array(plans)

@@ -300,14 +300,24 @@ def _fractional_cases() -> list[tuple[NetworkData, np.ndarray, HubModelParams, f
     return cases
 
 
-def test_branching_on_a_fractional_relaxation_reaches_the_enumerated_optimum() -> None:
+def test_branching_on_a_fractional_relaxation_reaches_the_enumerated_optimum(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
     # Reference: tests/bruteforce.py (every hub set and allocation). The
     # search starts from hubnet's local-search plan in solve_network, and
-    # from no plan at all when called directly.
+    # from no plan at all when called directly. Screening (hubnet.screen)
+    # makes most of these relaxations integral: first with it, then without
+    # it so that the branching itself is what is tested.
+    import hubnet.solve
     from hubnet.pathlp import branch_on_path, relax_path
 
     cases = _fractional_cases()
     assert len(cases) >= 8  # enough fractional relaxations to mean something
+    for data, d, params, want in cases:
+        sol = solve_network(data, d, params, SolverParams(time_limit_s=60.0))
+        assert sol.stats.status == "optimal"
+        assert sol.costs["total"] == pytest.approx(want, rel=1e-7)
+    monkeypatch.setattr(hubnet.solve, "_screening_applies", lambda *args: False)
     for data, d, params, want in cases:
         sol = solve_network(data, d, params, SolverParams(time_limit_s=60.0))
         assert sol.stats.formulation == BRANCHED and sol.stats.status == "optimal"
@@ -462,7 +472,7 @@ def test_flow_model_narrowed_by_its_own_relaxation_keeps_the_optimum(
     if route == "cbc":
         monkeypatch.setattr(hubnet.solve, "PATH_MAX_COLUMNS", 0)
     else:
-        monkeypatch.setattr(hubnet.solve, "_path_relaxation_first", lambda *args: False)
+        monkeypatch.setattr(hubnet.solve, "_path_relaxation_applies", lambda *args: False)
     allocations = hubs = 0
     for seed in range(8):
         data, d, fixed, handling = _network(seed, n=8)

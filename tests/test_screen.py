@@ -1,0 +1,159 @@
+"""Screening single-allocation allocations by a bound over every hub set (hubnet/screen.py).
+
+Reference outside hubnet's model code: tests/bruteforce.py enumerates every
+single-allocation plan from the problem's definition; the AP optima are the
+published values in ../shared/reference/hub_benchmarks/published_optima.csv
+(Ernst and Krishnamoorthy 1996).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+
+import numpy as np
+import pytest
+from benchdata import ap_network, ap_params, euclid, reference_dir
+from bruteforce import single_allocation_plans
+
+from hubnet.config import HubModelParams, SolverParams
+from hubnet.data import Demand, NetworkData, Site
+from hubnet.screen import MAX_WORK, screen_allocations, screening_work
+from hubnet.solve import solve_network
+
+
+def _network(seed: int, n: int = 7, own: bool = False) -> tuple[NetworkData, np.ndarray]:
+    """Planar sites, flows both ways (``own``: also site to itself), fixed and handling costs."""
+    rng = np.random.default_rng(seed)
+    xy = rng.uniform(0, 100, size=(n, 2))
+    w = rng.integers(0, 25, size=(n, n)).astype(float)
+    w[rng.uniform(size=(n, n)) < 0.2] = 0.0
+    if not own:
+        np.fill_diagonal(w, 0.0)
+    sites = tuple(
+        Site(
+            id=f"S{i}",
+            name=f"site {i}",
+            x=float(xy[i, 0]),
+            y=float(xy[i, 1]),
+            hub_fixed_cost=float(rng.uniform(100, 900)),
+            handling_cost=float(rng.uniform(0, 2)),
+        )
+        for i in range(n)
+    )
+    demand = tuple(
+        Demand(f"S{i}", f"S{j}", float(w[i, j])) for i in range(n) for j in range(n) if w[i, j] > 0
+    )
+    d = np.sqrt(((xy[:, None] - xy[None]) ** 2).sum(-1))
+    return NetworkData(sites, demand, coordinates="planar", allow_same_site_demand=own), d
+
+
+def _plans(
+    data: NetworkData, d: np.ndarray, params: HubModelParams
+) -> tuple[np.ndarray, np.ndarray]:
+    sites = data.sites
+    assert params.hubs is not None
+    return single_allocation_plans(
+        d,
+        data.flow_matrix(),
+        params.hubs,
+        chi=params.collection_factor,
+        alpha=params.transfer_factor,
+        delta=params.distribution_factor,
+        fixed=np.array([s.hub_fixed_cost for s in sites]),
+        handling=np.array([s.handling_cost for s in sites]),
+        candidates=[k for k, s in enumerate(sites) if s.is_candidate],
+        forced=[k for k, s in enumerate(sites) if s.hub_status == "open"],
+    )
+
+
+@pytest.mark.parametrize("p", [2, 3])
+@pytest.mark.parametrize("own", [False, True])
+def test_screen_keeps_every_allocation_of_every_plan_within_the_incumbent(
+    p: int, own: bool
+) -> None:
+    # Reference: tests/bruteforce.py, every plan of each network priced from
+    # the definition. Whatever the incumbent (the optimum, or a plan 1 % or
+    # 5 % dearer), each allocation of each plan costing no more is left in,
+    # and the screen's bound is at most the optimum. With own = True the
+    # flow matrix has a diagonal (as AP's), priced at the hub and back.
+    ruled_out = 0
+    for seed in range(6):
+        data, d = _network(seed + 10 * p, own=own)
+        params = HubModelParams(allocation="single", hubs=p, transfer_factor=0.7)
+        costs, plans = _plans(data, d, params)
+        best = float(costs.min())
+        for incumbent in (best, best * 1.01, best * 1.05):
+            found = screen_allocations(data, d, params, incumbent)
+            assert found is not None
+            assert found.bound <= best * (1 + 1e-9)
+            within = plans[costs <= incumbent]
+            for a in within:
+                assert found.allowed[np.arange(data.n), a].all(), (seed, incumbent)
+            ruled_out += int((~found.allowed).sum())
+    # Not vacuous: it rules allocations out (measured: 500-700 of the
+    # 6 x 3 x 49 over the networks of one case).
+    assert ruled_out >= 100
+
+
+def test_screen_honours_forced_and_closed_hubs() -> None:
+    # Reference: tests/bruteforce.py with the same forced and closed sites.
+    for seed in range(4):
+        data, d = _network(seed)
+        sites = list(data.sites)
+        sites[1] = dataclasses.replace(sites[1], hub_status="open")
+        sites[4] = dataclasses.replace(sites[4], hub_status="closed")
+        data = dataclasses.replace(data, sites=tuple(sites))
+        params = HubModelParams(allocation="single", hubs=3, transfer_factor=0.5)
+        costs, plans = _plans(data, d, params)
+        best = float(costs.min())
+        found = screen_allocations(data, d, params, best * 1.02)
+        assert found is not None
+        assert not found.allowed[:, 4].any()  # a closed site is no one's hub
+        for a in plans[costs <= best * 1.02]:
+            assert found.allowed[np.arange(data.n), a].all()
+        # solve_network screens and still reaches the enumerated optimum.
+        lines: list[str] = []
+        sol = solve_network(data, d, params, SolverParams(), progress=lines.append)
+        assert sol.stats.status == "optimal"
+        assert sol.costs["total"] == pytest.approx(best, rel=1e-7)
+        assert any("left by screening" in line for line in lines)
+
+
+def test_screening_applies_only_where_it_is_exact() -> None:
+    data, d = _network(0)
+    single = HubModelParams(allocation="single", hubs=2)
+    assert screening_work(data, single) is not None
+    for params in (
+        dataclasses.replace(single, allocation="multiple"),
+        dataclasses.replace(single, hubs=None),
+        dataclasses.replace(single, capacitated=True),
+    ):
+        assert screening_work(data, params) is None
+        assert screen_allocations(data, d, params, 1e9) is None
+    # No priced plan in hand: nothing to screen against.
+    assert screen_allocations(data, d, single, float("nan")) is None
+
+
+# Published: published_optima.csv, AP 25 nodes, single allocation p-hub
+# median (Ernst and Krishnamoorthy 1996): objective and 1-based hubs.
+AP25_SINGLE = {
+    2: (175541.98, ["8", "18"]),
+    3: (155256.32, ["7", "14", "18"]),
+    4: (139197.17, ["2", "7", "14", "18"]),
+}
+
+
+@pytest.mark.parametrize("p", sorted(AP25_SINGLE))
+def test_ap25_screened_relaxation_reaches_the_published_optimum(p: int) -> None:
+    # Reference above; within half a unit of the last printed digit.
+    reference_dir()
+    data = ap_network(25)
+    params = ap_params("single", p)
+    assert (screening_work(data, params) or 0) <= MAX_WORK
+    lines: list[str] = []
+    sol = solve_network(data, euclid(data), params, SolverParams(), progress=lines.append)
+    want, hubs = AP25_SINGLE[p]
+    assert sol.stats.status == "optimal"
+    assert abs(sol.costs["total"] - want) <= 0.005
+    assert sorted(sol.hub_ids, key=int) == hubs
+    assert any("left by screening" in line for line in lines), lines
