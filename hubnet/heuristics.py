@@ -70,7 +70,15 @@ class _Pricer:
         if (load > caps + 1e-9).any():
             return None
         # 1-opt: move one terminal to another hub while it lowers the cost.
-        best = self.single_cost(h, assign)
+        # A move's cost change is priced in O(n p) from each terminal's
+        # volume to and from each hub's terminals (``to_hub``, ``from_hub``,
+        # (n, p), kept up to date), instead of re-pricing the plan.
+        hubs_t = self.t2[np.ix_(h, h)]  # (p, p), 0 on the diagonal
+        onehot = np.zeros((len(assign), len(h)))
+        onehot[np.arange(len(assign)), assign] = 1.0
+        to_hub = self.w @ onehot  # to_hub[i, b]: i's volume to the terminals on hub b
+        from_hub = self.w.T @ onehot
+        own_w = np.diag(self.w).astype(float)
         improved = True
         rounds = 0
         while improved and rounds < 20:
@@ -80,20 +88,53 @@ class _Pricer:
                 if i in h:
                     continue
                 cur = assign[i]
+                delta = self._move_costs(i, cur, local[i], hubs_t, to_hub[i], from_hub[i], own_w[i])
                 for k_pos in range(len(h)):
                     if k_pos == cur or load[k_pos] + self.out_vol[i] > caps[k_pos] + 1e-9:
                         continue
-                    assign[i] = k_pos
-                    cost = self.single_cost(h, assign)
-                    if cost < best - 1e-9:
-                        best = cost
+                    if delta[k_pos] < -1e-9:
+                        assign[i] = k_pos
                         load[cur] -= self.out_vol[i]
                         load[k_pos] += self.out_vol[i]
+                        to_hub[:, cur] -= self.w[:, i]
+                        to_hub[:, k_pos] += self.w[:, i]
+                        from_hub[:, cur] -= self.w[i, :]
+                        from_hub[:, k_pos] += self.w[i, :]
                         cur = k_pos
                         improved = True
-                    else:
-                        assign[i] = cur
+                        delta = self._move_costs(
+                            i, cur, local[i], hubs_t, to_hub[i], from_hub[i], own_w[i]
+                        )
         return h[assign]
+
+    @staticmethod
+    def _move_costs(
+        i: int,
+        cur: int,
+        local_i: np.ndarray,
+        hubs_t: np.ndarray,
+        to_hub_i: np.ndarray,
+        from_hub_i: np.ndarray,
+        own: float,
+    ) -> np.ndarray:
+        """Cost change of moving terminal i from hub position ``cur`` to each, (p,).
+
+        ``local_i`` (p,): i's collection, handling and distribution cost on
+        each hub; ``hubs_t`` (p, p): transfer plus second-hub handling per
+        unit; ``to_hub_i`` / ``from_hub_i`` (p,): i's volume to and from the
+        terminals on each hub; ``own``: i's volume to itself, which stays on
+        i's hub whichever it is. Currency per day.
+        """
+        out_i = to_hub_i.copy()
+        in_i = from_hub_i.copy()
+        out_i[cur] -= own
+        in_i[cur] -= own
+        return np.asarray(
+            local_i
+            - local_i[cur]
+            + (hubs_t - hubs_t[cur][None, :]) @ out_i
+            + (hubs_t.T - hubs_t[:, cur][None, :]) @ in_i
+        )
 
     def single_cost(self, h: np.ndarray, assign_pos: np.ndarray) -> float:
         n = len(assign_pos)

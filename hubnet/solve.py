@@ -53,7 +53,7 @@ from hubnet.pathlp import (
     satisfies_triangle,
 )
 from hubnet.screen import MAX_WORK as SCREEN_MAX_WORK
-from hubnet.screen import screen_allocations, screening_work
+from hubnet.screen import TOP_SETS, screen_allocations, screening_work
 from hubnet.solution import RunStatus, Solution, SolveStats, evaluate_plan, solver_options
 
 Progress = Callable[[str], None]
@@ -458,12 +458,13 @@ def solve_network(
     if _path_relaxation_applies(params, requested):
         screened: _Screened | None = None
         if _screening_applies(data, params):
-            # The screen needs a plan in hand: the start comes first here.
-            t_start = time.perf_counter()
-            start = _start(data, d, params, start_hubs, progress, opts.time_limit_s)
-            start_seconds = time.perf_counter() - t_start
-            started = True
-            screened = _screen(data, d, params, start, _left(opts, t_run), progress)
+            # The screen needs a plan in hand: the given hubs', or its own.
+            if start_hubs is not None:
+                t_start = time.perf_counter()
+                start = _start(data, d, params, start_hubs, progress, opts.time_limit_s)
+                start_seconds = time.perf_counter() - t_start
+            screened, start = _screen(data, d, params, start, _left(opts, t_run), progress)
+            started = start is not None
         allowed = None if screened is None else screened.allowed
         if relaxation_columns(data, allowed) <= PATH_MAX_COLUMNS:
             proven, relaxed, path_model = _solve_by_path_relaxation(
@@ -780,17 +781,19 @@ def _screen(
     start: Start | None,
     left: SolverParams,
     progress: Progress,
-) -> _Screened | None:
-    """Rule out the allocations that no plan cheaper than ``start`` uses.
+) -> tuple[_Screened | None, Start | None]:
+    """Rule out the allocations that no plan cheaper than the start uses.
 
-    ``left`` holds the time left of the run (s): screening takes at most a
-    quarter of it. Returns ``None`` when there is no priced start or the
-    screen did not finish.
+    With no ``start`` the first round finds one: the cheapest of the
+    hub sets of smallest bound, allocated and priced
+    (:func:`~hubnet.screen.screen_allocations`). ``left`` holds the time
+    left of the run (s): screening takes at most a quarter of it. Returns
+    the allocations left (``None`` when the screen did not finish, or the
+    start given has no priced allocation) and the start.
     """
-    if start is None or start[1] is None or not np.isfinite(start[2]):
-        return None
+    if start is not None and (start[1] is None or not np.isfinite(start[2])):
+        return None, start
     t0 = time.perf_counter()
-    incumbent = start[2]
     budget = None if left.time_limit_s is None else 0.25 * left.time_limit_s
     allowed: np.ndarray | None = None
     rounds = 0
@@ -803,36 +806,44 @@ def _screen(
             data,
             d,
             params,
-            incumbent,
+            None if start is None else start[2],
             time_limit_s=None if budget is None else budget - spent,
             allowed=allowed,
         )
         if found is None:
             break
+        if start is None:
+            start = found.plan
+            assert start is not None
+            progress(
+                f"plan from the {TOP_SETS} hub sets of smallest bound: {len(start[0])} hubs, "
+                f"cost {start[2]:,.2f}"
+            )
         rounds += 1
         before = data.n * data.n if allowed is None else int(allowed.sum())
         # The start's own allocations are in (its cost is its own bound's
         # ceiling); kept explicitly against rounding.
         allowed = found.allowed.copy()
+        assert start is not None and start[1] is not None
         allowed[np.arange(data.n), start[1]] = True
         if int(allowed.sum()) > (1.0 - SCREEN_GAIN) * before:
             break
         lp_guess = LP_SECONDS_PER_COLUMN * relaxation_columns(data, allowed)
         if time.perf_counter() - t_round > lp_guess:
             break
-    if allowed is None:
+    if allowed is None or start is None:
         progress("allocations not screened within the time limit")
-        return None
+        return None, start
     seconds = time.perf_counter() - t0
     cand = [k for k, s in enumerate(data.sites) if s.is_candidate]
     total = data.n * len(cand)
     text = (
         f"{int(allowed.sum())} of {total} allocations left by screening every set of "
-        f"{params.hubs} hubs against the start {incumbent:,.2f} "
+        f"{params.hubs} hubs against the plan {start[2]:,.2f} "
         f"({rounds} round{'s' if rounds > 1 else ''}, {seconds:.2f} s)"
     )
     progress(text)
-    return _Screened(allowed, incumbent, rounds, seconds, text)
+    return _Screened(allowed, start[2], rounds, seconds, text), start
 
 
 def _fix_by_reduced_cost(

@@ -157,3 +157,33 @@ def test_ap25_screened_relaxation_reaches_the_published_optimum(p: int) -> None:
     assert abs(sol.costs["total"] - want) <= 0.005
     assert sorted(sol.hub_ids, key=int) == hubs
     assert any("left by screening" in line for line in lines), lines
+
+
+@pytest.mark.parametrize("own", [False, True])
+def test_screen_without_a_plan_prices_its_own(own: bool) -> None:
+    # Reference: tests/bruteforce.py. With no incumbent the screen allocates
+    # the sets of smallest bound and prices them: the plan it returns costs
+    # what the definition says, no plan cheaper than it loses an
+    # allocation, and its allocation is a local optimum under moving one
+    # terminal to another hub of the set (each move priced from the
+    # definition).
+    for seed in range(5):
+        data, d = _network(seed + 40, own=own)
+        params = HubModelParams(allocation="single", hubs=3, transfer_factor=0.6)
+        costs, plans = _plans(data, d, params)
+        found = screen_allocations(data, d, params, None)
+        assert found is not None and found.plan is not None
+        hubs, assign, cost = found.plan
+        row = np.flatnonzero((plans == assign).all(axis=1))
+        assert len(row) == 1 and costs[row[0]] == pytest.approx(cost, rel=1e-9)
+        assert sorted(set(assign.tolist())) == hubs
+        for a in plans[costs <= cost]:
+            assert found.allowed[np.arange(data.n), a].all()
+        for i in range(data.n):
+            if i in hubs:
+                continue
+            for k in hubs:
+                moved = assign.copy()
+                moved[i] = k
+                r = np.flatnonzero((plans == moved).all(axis=1))
+                assert costs[r[0]] >= cost * (1 - 1e-9), (seed, i, k)
