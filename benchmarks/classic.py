@@ -48,6 +48,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 import benchdata  # noqa: E402
 from baseline import Instance, baseline_name, solve_baseline_bounded  # noqa: E402
 
+import hubnet  # noqa: E402
 from hubnet.classic import read_ap_format  # noqa: E402
 from hubnet.config import DistanceParams, HubModelParams, SolverName, SolverParams  # noqa: E402
 from hubnet.data import NetworkData  # noqa: E402
@@ -566,13 +567,16 @@ def machine() -> str:
 
 
 def code_version() -> str:
-    """Git commit of the repository plus a digest of hubnet's sources (they may be uncommitted)."""
+    """Commit of the imported hubnet's checkout and a digest of its (maybe uncommitted) sources."""
+    # The hubnet actually imported (PYTHONPATH may point at another
+    # checkout than this script's, e.g. to time an older commit).
+    package = Path(hubnet.__file__).resolve().parent
     digest = hashlib.sha256()
-    for path in sorted((REPO / "hubnet").rglob("*.py")):
+    for path in sorted(package.rglob("*.py")):
         digest.update(path.read_bytes())
     try:
         commit = subprocess.run(
-            ["git", "-C", str(REPO), "rev-parse", "--short", "HEAD"],
+            ["git", "-C", str(package), "rev-parse", "--short", "HEAD"],
             capture_output=True,
             text=True,
             check=True,
