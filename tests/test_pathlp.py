@@ -676,3 +676,39 @@ def _capacitated_optimum(seed: int, w: np.ndarray, cap: np.ndarray, p: int | Non
         capacity=cap,
     )
     return float(want)
+
+
+def test_exact_allocation_of_given_hubs_matches_enumeration() -> None:
+    # The capacitated start allocates the relaxation's hubs exactly.
+    # Reference: tests/bruteforce.py, every allocation to the same hubs
+    # within the sort capacities (candidates = those hubs, p = their count).
+    from hubnet.solve import _allocate_exactly
+
+    checked = 0
+    for seed in range(10):
+        data, d, w, cap = _capacitated(200 + seed, 0.5, (2, 3))
+        _data, _d, fixed, handling = _network(200 + seed)
+        params = HubModelParams(allocation="single", transfer_factor=0.8, capacitated=True)
+        for hubs in ([0, 3], [1, 4, 6]):
+            want, _ = brute_force(
+                d,
+                w,
+                allocation="single",
+                p=len(hubs),
+                alpha=0.8,
+                fixed=fixed,
+                handling=handling,
+                capacity=cap,
+                candidates=hubs,
+            )
+            got = _allocate_exactly(data, d, params, hubs, (5.0, None))
+            if not np.isfinite(want):
+                assert got is None  # no allocation fits: nothing returned
+                continue
+            assert got is not None
+            assert got[0] == hubs
+            assert got[2] == pytest.approx(want, rel=1e-7), (seed, hubs)
+            load = np.bincount(got[1], weights=w.sum(axis=1), minlength=data.n)
+            assert (load <= cap + 1e-6).all()
+            checked += 1
+    assert checked >= 8
