@@ -1170,22 +1170,21 @@ def _allocate_exactly(
 
     The flow model with every other site closed, solved by HiGHS within
     ``limits[0]`` seconds on the run's ``limits[1]`` threads (AP, 25 sites,
-    2-3 hubs: 0.02-0.3 s). ``None`` when the hubs leave out a forced-open
-    hub, or no allocation fits in time.
+    2-3 hubs: 0.02-0.3 s). ``None`` when the hubs are not as many as asked
+    or leave out a forced-open hub, or no allocation fits in time.
     """
     limit_s, threads = limits
     chosen = set(hubs)
-    if not chosen or any(
-        s.hub_status == "open" and k not in chosen for k, s in enumerate(data.sites)
-    ):
+    if not chosen or (params.hubs is not None and len(chosen) != params.hubs):
+        return None
+    if any(s.hub_status == "open" and k not in chosen for k, s in enumerate(data.sites)):
         return None
     sites = tuple(
         dataclasses.replace(s, hub_status="open" if k in chosen else "closed")
         for k, s in enumerate(data.sites)
     )
-    fixed = dataclasses.replace(params, hubs=None if params.hubs is None else len(chosen))
     try:
-        model = build_model(dataclasses.replace(data, sites=sites), d, fixed)
+        model = build_model(dataclasses.replace(data, sites=sites), d, params)
     except InputError:
         return None
     use_threads(threads)

@@ -682,6 +682,8 @@ def test_exact_allocation_of_given_hubs_matches_enumeration() -> None:
     # The capacitated start allocates the relaxation's hubs exactly.
     # Reference: tests/bruteforce.py, every allocation to the same hubs
     # within the sort capacities (candidates = those hubs, p = their count).
+    from dataclasses import replace
+
     from hubnet.solve import _allocate_exactly
 
     checked = 0
@@ -711,4 +713,7 @@ def test_exact_allocation_of_given_hubs_matches_enumeration() -> None:
             load = np.bincount(got[1], weights=w.sum(axis=1), minlength=data.n)
             assert (load <= cap + 1e-6).all()
             checked += 1
+            # With a hub count asked, only that many hubs are allocated to.
+            counted = replace(params, hubs=len(hubs) + 1)
+            assert _allocate_exactly(data, d, counted, hubs, (5.0, None)) is None
     assert checked >= 8
