@@ -12,9 +12,10 @@ import numpy as np
 import pytest
 from benchdata import ap_network, ap_params, euclid
 from bruteforce import brute_force
+from randomnet import random_network as _network
 
 from hubnet.config import HubModelParams, SolverParams
-from hubnet.data import Demand, NetworkData, Site
+from hubnet.data import NetworkData
 from hubnet.heuristics import single_allocation_cost
 from hubnet.pathlp import (
     fixable,
@@ -25,33 +26,6 @@ from hubnet.pathlp import (
 from hubnet.solve import solve_network
 
 PATH = "single-allocation path relaxation (integral, so optimal)"
-
-
-def _network(seed: int, n: int = 7) -> tuple[NetworkData, np.ndarray, np.ndarray, np.ndarray]:
-    """Planar sites with flows in both directions, fixed and handling costs."""
-    rng = np.random.default_rng(seed)
-    xy = rng.uniform(0, 100, size=(n, 2))
-    w = rng.integers(0, 25, size=(n, n)).astype(float)
-    w[rng.uniform(size=(n, n)) < 0.2] = 0.0  # some pairs one way only or not at all
-    np.fill_diagonal(w, 0.0)
-    fixed = rng.uniform(100, 900, size=n).round(1)
-    handling = rng.uniform(0, 2, size=n).round(2)
-    sites = tuple(
-        Site(
-            id=f"S{i}",
-            name=f"site {i}",
-            x=float(xy[i, 0]),
-            y=float(xy[i, 1]),
-            hub_fixed_cost=float(fixed[i]),
-            handling_cost=float(handling[i]),
-        )
-        for i in range(n)
-    )
-    demand = tuple(
-        Demand(f"S{i}", f"S{j}", float(w[i, j])) for i in range(n) for j in range(n) if w[i, j] > 0
-    )
-    d = np.sqrt(((xy[:, None] - xy[None]) ** 2).sum(-1))
-    return NetworkData(sites, demand, coordinates="planar"), d, fixed, handling
 
 
 def _enumerated(

@@ -14,37 +14,18 @@ import numpy as np
 import pytest
 from benchdata import ap_network, ap_params, euclid, reference_dir
 from bruteforce import single_allocation_plans
+from randomnet import random_network
 
 from hubnet.config import HubModelParams, SolverParams
-from hubnet.data import Demand, NetworkData, Site
+from hubnet.data import NetworkData
 from hubnet.screen import MAX_WORK, screen_allocations, screening_work
 from hubnet.solve import solve_network
 
 
-def _network(seed: int, n: int = 7, own: bool = False) -> tuple[NetworkData, np.ndarray]:
-    """Planar sites, flows both ways (``own``: also site to itself), fixed and handling costs."""
-    rng = np.random.default_rng(seed)
-    xy = rng.uniform(0, 100, size=(n, 2))
-    w = rng.integers(0, 25, size=(n, n)).astype(float)
-    w[rng.uniform(size=(n, n)) < 0.2] = 0.0
-    if not own:
-        np.fill_diagonal(w, 0.0)
-    sites = tuple(
-        Site(
-            id=f"S{i}",
-            name=f"site {i}",
-            x=float(xy[i, 0]),
-            y=float(xy[i, 1]),
-            hub_fixed_cost=float(rng.uniform(100, 900)),
-            handling_cost=float(rng.uniform(0, 2)),
-        )
-        for i in range(n)
-    )
-    demand = tuple(
-        Demand(f"S{i}", f"S{j}", float(w[i, j])) for i in range(n) for j in range(n) if w[i, j] > 0
-    )
-    d = np.sqrt(((xy[:, None] - xy[None]) ** 2).sum(-1))
-    return NetworkData(sites, demand, coordinates="planar", allow_same_site_demand=own), d
+def _network(seed: int, own: bool = False) -> tuple[NetworkData, np.ndarray]:
+    """A random 7-site network (tests/randomnet.py) and its distances."""
+    data, d, _fixed, _handling = random_network(seed, own=own)
+    return data, d
 
 
 def _plans(
