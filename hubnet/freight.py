@@ -55,6 +55,7 @@ from hubnet.data import DistanceMatrix, NetworkData
 from hubnet.emissions import load_fuels
 from hubnet.errors import InfeasibleError, InputError, NoSolutionError, Problem, SolverError
 from hubnet.fleet import TIERS, FreightParams, Tier, VehicleClass
+from hubnet.heuristics import sort_capacities
 from hubnet.hours import load_rules, time_legs
 from hubnet.model import HubModel, check_plan_possible, check_start_hubs, start_misfit
 from hubnet.solution import Leg, Route, Solution, SolveStats, hub_records
@@ -1767,13 +1768,7 @@ def starting_freight_plan(
         if not params.capacitated:
             return np.asarray(hubs)[np.argmin(near, axis=1)]
         out_vol = st.w.sum(axis=1)
-        left = np.array(
-            [
-                np.inf if data.sites[k].sort_capacity is None else data.sites[k].sort_capacity
-                for k in hubs
-            ],
-            dtype=float,
-        )
+        left = sort_capacities(data)[hubs].astype(float)
         got = np.full(data.n, -1)
         for pos, k in enumerate(hubs):  # a hub sorts its own volume
             got[k] = k

@@ -16,6 +16,11 @@ from hubnet.model import allocation_costs
 from hubnet.solution import best_hub_pairs, unit_path_costs
 
 
+def sort_capacities(data: NetworkData) -> np.ndarray:
+    """Each site's sort capacity, units per day (``inf`` where none is set), ``(n,)``."""
+    return np.array([np.inf if s.sort_capacity is None else s.sort_capacity for s in data.sites])
+
+
 class _Pricer:
     """Prices hub sets (and single allocations) for one network, vectorised."""
 
@@ -27,9 +32,7 @@ class _Pricer:
         self.in_vol = self.w.sum(axis=0)
         self.handling = np.array([s.handling_cost for s in data.sites])
         self.fixed = np.array([s.hub_fixed_cost for s in data.sites])
-        self.cap = np.array(
-            [np.inf if s.sort_capacity is None else s.sort_capacity for s in data.sites]
-        )
+        self.cap = sort_capacities(data)
         self.c, self.t, self.dist = unit_path_costs(d, params)
         # Collection, handling at the hub and distribution of each site's
         # volume for every hub, (n, n): the local part of an allocation.

@@ -107,8 +107,13 @@ def screening_work(data: NetworkData, params: HubModelParams) -> int | None:
     of pair costs would be too large.
     """
     found = _choices(data, params)
-    if found is None:
-        return None
+    return None if found is None else _work(data, params, found)
+
+
+def _work(
+    data: NetworkData, params: HubModelParams, found: tuple[list[int], list[int], int]
+) -> int | None:
+    """:func:`screening_work` once the hub choices ``found`` are known."""
     forced, free, need = found
     q = len(forced) + len(free)
     if data.n * data.n * q * q > MAX_TABLE:
@@ -158,13 +163,12 @@ def screen_allocations(
         ``None`` when screening does not apply, is too large
         (:data:`MAX_WORK`) or ran out of time.
     """
-    work = screening_work(data, params)
-    if work is None or work > MAX_WORK:
+    found = _choices(data, params)
+    work = None if found is None else _work(data, params, found)
+    if found is None or work is None or work > MAX_WORK:
         return None
     if incumbent is not None and not np.isfinite(incumbent):
         return None
-    found = _choices(data, params)
-    assert found is not None
     forced, free, need = found
     t0 = time.perf_counter()
     deadline = None if time_limit_s is None else t0 + time_limit_s

@@ -30,7 +30,12 @@ from hubnet.benders import solve_multiple_benders
 from hubnet.config import HubModelParams, SolverName, SolverParams
 from hubnet.data import NetworkData
 from hubnet.errors import InfeasibleError, InputError, NoSolutionError, SolverError
-from hubnet.heuristics import allocate_to_hubs, single_allocation_cost, starting_plan
+from hubnet.heuristics import (
+    allocate_to_hubs,
+    single_allocation_cost,
+    sort_capacities,
+    starting_plan,
+)
 from hubnet.hubsets import MAX_WORK as ENUMERATION_MAX_WORK
 from hubnet.hubsets import WORK_PER_S as ENUMERATION_WORK_PER_S
 from hubnet.hubsets import cheapest_hub_set, enumeration_work
@@ -755,7 +760,6 @@ class _Screened:
 
     allowed: np.ndarray
     incumbent: float
-    rounds: int
     seconds: float
     text: str
 
@@ -843,7 +847,7 @@ def _screen(
         f"({rounds} round{'s' if rounds > 1 else ''}, {seconds:.2f} s)"
     )
     progress(text)
-    return _Screened(allowed, start[2], rounds, seconds, text), start
+    return _Screened(allowed, start[2], seconds, text), start
 
 
 def _fix_by_reduced_cost(
@@ -1198,8 +1202,7 @@ def _allocate_exactly(
     if any((v.varValue or 0.0) < 0.5 for (i, k), v in model.assign.items() if assign[i] == k):
         return None
     load = np.bincount(assign, weights=data.flow_matrix().sum(axis=1), minlength=data.n)
-    cap = np.array([np.inf if s.sort_capacity is None else s.sort_capacity for s in data.sites])
-    if (load > cap * (1 + 1e-9) + 1e-9).any():
+    if (load > sort_capacities(data) * (1 + 1e-9) + 1e-9).any():
         return None
     return sorted(chosen), assign, single_allocation_cost(data, d, params, assign)
 
