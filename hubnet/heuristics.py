@@ -151,6 +151,11 @@ class _Pricer:
         return float(cost + self.fixed[h].sum())
 
 
+#: Route costs priced in one batch by :meth:`_MultipleMoves.with_each`
+#: (two work arrays of 8 bytes each: 1 MB).
+BATCH_ELEMENTS = 65_536
+
+
 class _MultipleMoves:
     """Exact costs of hub-set moves under multiple allocation, O(n^2) per move.
 
@@ -174,6 +179,8 @@ class _MultipleMoves:
         self.all_flows = bool(self.mask.all())
         self.w = np.where(self.mask, pricer.w, 0.0)
         self.n = pricer.w.shape[0]
+        # Work arrays of :meth:`with_each`, ``(chunk, n, n)`` each.
+        self._work: tuple[np.ndarray, np.ndarray] | None = None
 
     def empty(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """The state of no open hub: every cost infinite."""
@@ -217,21 +224,42 @@ class _MultipleMoves:
         return self.total(self.state(hubs)[0]) + float(self.fixed[hubs].sum())
 
     def with_each(
-        self, state: tuple[np.ndarray, np.ndarray, np.ndarray], xs: list[int], chunk: int = 16
+        self,
+        state: tuple[np.ndarray, np.ndarray, np.ndarray],
+        xs: list[int],
+        chunk: int | None = None,
     ) -> np.ndarray:
-        """Routing cost (currency per day) of the state's hubs plus each x in ``xs``."""
+        """Routing cost (currency per day) of the state's hubs plus each x in ``xs``.
+
+        The x are priced ``chunk`` at a time (``None``: as many as keep a
+        batch near :data:`BATCH_ELEMENTS` route costs, which stays in the
+        processor's cache), in two work arrays kept from call to call: AP,
+        100 sites, 2.3 ms for 100 candidates against 8.3 ms in batches of
+        64 with fresh arrays.
+        """
         cur, reach, onward = state
+        n = self.n
         out = np.empty(len(xs))
+        if not len(xs):
+            return out
+        if chunk is None:
+            chunk = max(1, BATCH_ELEMENTS // (n * n))
+        chunk = min(chunk, len(xs))
+        if self._work is None or self._work[0].shape[0] < chunk:
+            self._work = (np.empty((chunk, n, n)), np.empty((chunk, n, n)))
+        w = self.w.ravel()
         for s in range(0, len(xs), chunk):
             x = np.asarray(xs[s : s + chunk])
-            via_first = (
-                self.c[:, x].T[:, :, None] + np.minimum(onward[x, :], self.dist[x, :])[:, None, :]
-            )
-            via_second = reach[:, x].T[:, :, None] + self.dist[x, :][:, None, :]
-            m = np.minimum(cur[None], np.minimum(via_first, via_second))
+            k = len(x)
+            via_first, via_second = self._work[0][:k], self._work[1][:k]
+            first_leg = np.minimum(onward[x, :], self.dist[x, :])  # x as first hub to j
+            np.add(self.c[:, x].T[:, :, None], first_leg[:, None, :], out=via_first)
+            np.add(reach[:, x].T[:, :, None], self.dist[x, :][:, None, :], out=via_second)
+            m = np.minimum(via_first, via_second, out=via_first)
+            np.minimum(m, cur[None], out=m)
             if not self.all_flows:
                 m[:, ~self.mask] = 0.0
-            out[s : s + len(x)] = np.einsum("xij,ij->x", m, self.w)
+            out[s : s + k] = m.reshape(k, n * n) @ w
         return out
 
 

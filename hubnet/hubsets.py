@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import math
 import time
+from collections.abc import Iterator
 from dataclasses import dataclass
 
 import numpy as np
@@ -30,10 +31,6 @@ from hubnet.heuristics import _MultipleMoves, _Pricer
 #: (1.5e8): 1.2-1.7 s, where Benders took 3.7 s; AP, 50 sites, 4 hubs
 #: (5.8e8): 3.8-10 s against Benders' 7.8 s, so left to Benders.
 MAX_WORK = 200_000_000
-#: Candidates priced in one numpy pass at the last level: on small networks
-#: the per-call overhead dominates (AP, 25 sites, 5 hubs: 64 instead of 16
-#: took the enumeration from 1.06 s to 0.62-0.93 s).
-LEAF_CHUNK = 64
 #: Work priced per second, for deciding whether the enumeration fits a
 #: time limit: half the rate measured on the benchmark machine (1e8).
 WORK_PER_S = 50_000_000
@@ -98,6 +95,51 @@ def enumeration_work(data: NetworkData, params: HubModelParams) -> int | None:
     return math.comb(len(free), need) * data.n * data.n
 
 
+def _leaves(
+    moves: _MultipleMoves,
+    found: tuple[list[int], list[int], int],
+    deadline: float | None,
+) -> Iterator[tuple[np.ndarray, list[int], list[int]]]:
+    """Every set of the forced hubs plus ``need`` free ones, priced, in batches.
+
+    Yields ``(costs, chosen, xs)``: the hub sets ``chosen + [x]`` for each x
+    in ``xs`` cost ``costs`` (routing and fixed, currency per day, under
+    multiple allocation). Stops early (``TimeoutError``) past ``deadline``
+    (a ``time.perf_counter()`` value).
+    """
+    forced, free, need = found
+    fixed = moves.fixed
+    base = moves.state(forced) if forced else moves.empty()
+    base_fixed = float(fixed[forced].sum())
+    if need == 0:
+        # The forced hubs are the set: as ``chosen`` plus the last of them.
+        yield np.array([moves.total(base[0]) + base_fixed]), list(forced[:-1]), list(forced[-1:])
+        return
+    fixed_free = fixed[np.asarray(free, dtype=np.int64)]
+
+    def walk(
+        state: tuple[np.ndarray, np.ndarray, np.ndarray],
+        chosen: list[int],
+        idx: int,
+        left: int,
+        fixed_so_far: float,
+    ) -> Iterator[tuple[np.ndarray, list[int], list[int]]]:
+        if deadline is not None and time.perf_counter() > deadline:
+            raise TimeoutError
+        if left == 1:
+            xs = free[idx:]
+            priced = moves.with_each(state, xs)
+            yield priced + fixed_so_far + fixed_free[idx:], chosen, xs
+            return
+        for i in range(idx, len(free) - left + 1):
+            x = free[i]
+            yield from walk(
+                moves.add(state, x), [*chosen, x], i + 1, left - 1, fixed_so_far + float(fixed[x])
+            )
+
+    yield from walk(base, list(forced), 0, need, base_fixed)
+
+
 def cheapest_hub_set(
     data: NetworkData,
     d: np.ndarray,
@@ -126,54 +168,64 @@ def cheapest_hub_set(
     found = _choices(data, params)
     if found is None:
         return None
-    forced, free, need = found
     t0 = time.perf_counter()
     deadline = None if time_limit_s is None else t0 + time_limit_s
     moves = _MultipleMoves(_Pricer(data, d, params))
-    fixed = moves.fixed
     best_cost, best_hubs = math.inf, None
-    base = moves.state(forced) if forced else moves.empty()
-    base_fixed = float(fixed[forced].sum())
-    if need == 0:
-        cost = moves.total(base[0]) + base_fixed
-        return HubSetOptimum(sorted(forced), cost, 1, time.perf_counter() - t0)
-    fixed_free = fixed[np.asarray(free, dtype=np.int64)]
-
-    out_of_time = False
-
-    def walk(
-        state: tuple[np.ndarray, np.ndarray, np.ndarray],
-        chosen: list[int],
-        idx: int,
-        left: int,
-        fixed_so_far: float,
-    ) -> None:
-        nonlocal best_cost, best_hubs, out_of_time
-        if out_of_time:
-            return
-        if deadline is not None and time.perf_counter() > deadline:
-            out_of_time = True
-            return
-        if left == 1:
-            xs = free[idx:]
-            priced = moves.with_each(state, xs, chunk=LEAF_CHUNK)
-            costs = priced + fixed_so_far + fixed_free[idx:]
+    try:
+        for costs, chosen, xs in _leaves(moves, found, deadline):
             j = int(np.argmin(costs))
             if costs[j] < best_cost:
                 best_cost, best_hubs = float(costs[j]), [*chosen, xs[j]]
-            return
-        for i in range(idx, len(free) - left + 1):
-            if out_of_time:
-                return
-            x = free[i]
-            walk(moves.add(state, x), [*chosen, x], i + 1, left - 1, fixed_so_far + float(fixed[x]))
-
-    walk(base, list(forced), 0, need, base_fixed)
-    if out_of_time or best_hubs is None:
+    except TimeoutError:
         return None
+    if best_hubs is None:
+        return None
+    _forced, free, need = found
     return HubSetOptimum(
         sorted(best_hubs),
         best_cost,
         math.comb(len(free), need),
         time.perf_counter() - t0,
     )
+
+
+def hub_sets_within(
+    data: NetworkData,
+    d: np.ndarray,
+    params: HubModelParams,
+    limit: float,
+    *,
+    time_limit_s: float | None = None,
+) -> list[tuple[float, list[int]]] | None:
+    """Every set of ``params.hubs`` hubs whose multiple-allocation cost is at most ``limit``.
+
+    Under single allocation each OD pair of a hub set is routed through its
+    origin's hub and its destination's, one of the routes multiple
+    allocation chooses among, so a set's multiple-allocation cost is a lower
+    bound on every single-allocation plan with those hubs (and the same
+    for any allocation rule). ``params`` may say either allocation; the
+    sets are priced under multiple allocation. ``limit`` is in currency per
+    day.
+
+    Returns
+    -------
+    list or None
+        ``(cost, hubs)`` pairs (hubs as matrix indices, ascending), cheapest
+        first; ``None`` without a fixed hub count, with sort capacities, or
+        out of time (``time_limit_s``, s).
+    """
+    found = hub_choices(data, params)
+    if found is None:
+        return None
+    deadline = None if time_limit_s is None else time.perf_counter() + time_limit_s
+    moves = _MultipleMoves(_Pricer(data, d, params))
+    out: list[tuple[float, list[int]]] = []
+    try:
+        for costs, chosen, xs in _leaves(moves, found, deadline):
+            for j in np.flatnonzero(costs <= limit):
+                out.append((float(costs[j]), sorted([*chosen, xs[j]])))
+    except TimeoutError:
+        return None
+    out.sort()
+    return out

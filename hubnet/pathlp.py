@@ -437,7 +437,7 @@ MAX_NODES = 400
 def branch_on_path(
     model: PathModel,
     relaxed: PathRelaxation,
-    incumbent: tuple[float, np.ndarray] | None,
+    incumbent: tuple[float, np.ndarray | None] | None,
     *,
     gap: float = 1e-6,
     time_limit_s: float | None = None,
@@ -461,6 +461,9 @@ def branch_on_path(
         A plan in hand, ``(cost, assign)``: cost per day and each site's hub
         (matrix indices), e.g. from local search. Allocations its cost rules
         out by reduced cost (:func:`fixable`) are left out of the search.
+        ``assign`` may be ``None`` for a plan outside this model (other
+        hubs): its cost is then only a cut-off, and when nothing cheaper
+        is found the result has no allocation.
     gap
         Relative gap at which a plan counts as proven optimal.
     time_limit_s
@@ -478,11 +481,13 @@ def branch_on_path(
     lo, hi = model.x_lo.copy(), model.x_hi.copy()
     best, best_assign = np.inf, None
     if incumbent is not None and np.isfinite(incumbent[0]):
-        best, best_assign = float(incumbent[0]), np.asarray(incumbent[1])
+        best = float(incumbent[0])
         out = fixable(relaxed, best)[:, cand].ravel()
-        pos = {int(k): a for a, k in enumerate(cand)}
-        keep = np.array([i * q + pos[int(k)] for i, k in enumerate(best_assign)])
-        out[keep] = False
+        if incumbent[1] is not None:
+            best_assign = np.asarray(incumbent[1])
+            pos = {int(k): a for a, k in enumerate(cand)}
+            keep = np.array([i * q + pos[int(k)] for i, k in enumerate(best_assign)])
+            out[keep] = False
         hi[out] = np.minimum(hi[out], 0.0)
     changed = np.flatnonzero(hi != model.x_hi)
     for col in changed:

@@ -59,6 +59,9 @@ from hubnet.pathlp import (
 )
 from hubnet.screen import MAX_WORK as SCREEN_MAX_WORK
 from hubnet.screen import TOP_SETS, screen_allocations, screening_work
+from hubnet.setsearch import MAX_WORK as SET_SEARCH_MAX_WORK
+from hubnet.setsearch import WORK_PER_S as SET_SEARCH_WORK_PER_S
+from hubnet.setsearch import search_hub_sets, search_work
 from hubnet.solution import RunStatus, Solution, SolveStats, evaluate_plan, solver_options
 
 Progress = Callable[[str], None]
@@ -483,6 +486,16 @@ def solve_network(
         t_start = time.perf_counter()
         start = _start(data, d, params, start_hubs, progress, opts.time_limit_s)
         start_seconds = time.perf_counter() - t_start
+    if relaxed is None and _set_search_applies(data, params, requested, opts, start):
+        assert start is not None and start[1] is not None
+        searched, start = _solve_by_hub_sets(
+            data, d, params, _left(opts, t_run), (start[0], start[1], start[2]), progress
+        )
+        if searched is not None:
+            stats = _run_facts(searched[2], opts, start_seconds)
+            return evaluate_plan(
+                data, d, params, searched[0], searched[1], stats, scenario=scenario
+            )
     if relaxed is not None and path_model is not None:
         branched, start = _branch_on_path_model(
             data, d, params, _left(opts, t_run), (relaxed, path_model), start, progress
@@ -1335,6 +1348,90 @@ def _branch_on_path_model(
     progress(
         f"{stats.status}: cost {found.objective:,.2f}, bound {bound:,.2f} after "
         f"{found.nodes} nodes ({found.seconds:.1f} s)"
+    )
+    return (found.hubs, found.assign, stats), better
+
+
+def _set_search_applies(
+    data: NetworkData,
+    params: HubModelParams,
+    requested: str,
+    opts: SolverParams,
+    start: Start | None,
+) -> bool:
+    """Search the hub sets (:mod:`hubnet.setsearch`) before the flow model.
+
+    Single allocation, a fixed hub count, no sort capacities, solver and
+    formulation left to hubnet (a named one gets its model: the
+    cross-checks depend on it), a priced starting plan, and an enumeration
+    of at most :data:`~hubnet.setsearch.MAX_WORK` that likely takes at most
+    half the time limit (at :data:`~hubnet.setsearch.WORK_PER_S`).
+    """
+    if requested != "auto" or params.formulation != "auto":
+        return False
+    if start is None or start[1] is None or not np.isfinite(start[2]):
+        return False
+    work = search_work(data, params)
+    if work is None or work > SET_SEARCH_MAX_WORK:
+        return False
+    limit = opts.time_limit_s
+    return limit is None or work / SET_SEARCH_WORK_PER_S <= 0.5 * limit
+
+
+def _solve_by_hub_sets(
+    data: NetworkData,
+    d: np.ndarray,
+    params: HubModelParams,
+    left: SolverParams,
+    start: tuple[list[int], np.ndarray, float],
+    progress: Progress,
+) -> tuple[tuple[list[int], np.ndarray, SolveStats] | None, Start]:
+    """Every hub set bounded, the few left allocated exactly (:mod:`hubnet.setsearch`).
+
+    ``left`` holds the time left of the run (s). Returns the plan's hubs,
+    allocation and stats when the search proved it optimal, else ``None``
+    (the flow model follows); and the best plan found, as the start for
+    what follows.
+    """
+    progress(
+        f"pricing every set of {params.hubs} hubs under multiple allocation, "
+        f"a lower bound on single allocation (start {start[2]:,.2f})"
+    )
+    found = search_hub_sets(
+        data, d, params, start, threads=left.threads, time_limit_s=left.time_limit_s
+    )
+    if found is None:
+        progress("hub sets not all priced within the time limit: solving the flow model")
+        return None, start
+    better: Start = (found.hubs, found.assign, found.cost)
+    if not found.proven:
+        progress(
+            f"{found.allocated} of {found.kept} hub sets allocated exactly before the time "
+            f"limit (best {found.cost:,.2f}): solving the flow model"
+        )
+        return None, better
+    seconds = found.bound_seconds + found.allocate_seconds
+    stats = _proven(
+        "highs",
+        found.cost,
+        seconds,
+        "single allocation: hub sets bounded by multiple allocation, each left allocated "
+        "exactly on the path relaxation",
+        left,
+        log=(
+            f"Each of the {found.sets} sets of {params.hubs} hubs priced under multiple "
+            f"allocation, a lower bound on its single-allocation plans "
+            f"({found.bound_seconds:.3f} s): {found.kept} at or below the starting plan's "
+            f"{start[2]:.6f}. The {found.allocated} of them with a bound below the best plan "
+            "so far were allocated exactly by HiGHS on the path relaxation with only their "
+            f"hubs open ({found.nodes} branch-and-bound nodes, {found.allocate_seconds:.3f} s); "
+            f"every other set's bound is at or above the best plan, {found.cost:.6f}, so it "
+            "is optimal.\n"
+        ),
+    )
+    progress(
+        f"optimal: cost {found.cost:,.2f}; {found.kept} of {found.sets} hub sets within the "
+        f"start's cost, {found.allocated} allocated exactly ({seconds:.1f} s)"
     )
     return (found.hubs, found.assign, stats), better
 

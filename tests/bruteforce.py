@@ -172,3 +172,21 @@ def single_allocation_plans(
             costs.append(cost + fixed[list(hubs)].sum())
             plans.append(a)
     return np.array(costs), np.array(plans)
+
+
+def cost_terms(data, params) -> dict:  # type: ignore[no-untyped-def,type-arg]
+    """The keyword arguments above for a hubnet network and its parameters.
+
+    Reads only the network's sites and the parameters' factors: the cost
+    factors, fixed and handling costs, candidates and forced-open hubs.
+    """
+    sites = data.sites
+    return {
+        "chi": params.collection_factor,
+        "alpha": params.transfer_factor,
+        "delta": params.distribution_factor,
+        "fixed": np.array([s.hub_fixed_cost for s in sites]),
+        "handling": np.array([s.handling_cost for s in sites]),
+        "candidates": [k for k, s in enumerate(sites) if s.is_candidate],
+        "forced": [k for k, s in enumerate(sites) if s.hub_status == "open"],
+    }

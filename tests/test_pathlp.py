@@ -443,6 +443,8 @@ def test_flow_model_narrowed_by_its_own_relaxation_keeps_the_optimum(
     # fixed and handling costs.
     import hubnet.solve
 
+    # The hub-set search (tests/test_setsearch.py) would take these first.
+    monkeypatch.setattr(hubnet.solve, "_set_search_applies", lambda *args: False)
     if route == "cbc":
         monkeypatch.setattr(hubnet.solve, "PATH_MAX_COLUMNS", 0)
     else:
@@ -474,6 +476,7 @@ def test_narrowing_keeps_forced_hubs_and_bent_matrices(monkeypatch: pytest.Monke
 
     import hubnet.solve
 
+    monkeypatch.setattr(hubnet.solve, "_set_search_applies", lambda *args: False)
     monkeypatch.setattr(hubnet.solve, "PATH_MAX_COLUMNS", 0)
     rebuilt = 0
     for seed in range(6):

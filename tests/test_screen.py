@@ -13,7 +13,7 @@ import dataclasses
 import numpy as np
 import pytest
 from benchdata import ap_network, ap_params, euclid, reference_dir
-from bruteforce import single_allocation_plans
+from bruteforce import cost_terms, single_allocation_plans
 from randomnet import random_network
 
 from hubnet.config import HubModelParams, SolverParams
@@ -31,20 +31,8 @@ def _network(seed: int, own: bool = False) -> tuple[NetworkData, np.ndarray]:
 def _plans(
     data: NetworkData, d: np.ndarray, params: HubModelParams
 ) -> tuple[np.ndarray, np.ndarray]:
-    sites = data.sites
     assert params.hubs is not None
-    return single_allocation_plans(
-        d,
-        data.flow_matrix(),
-        params.hubs,
-        chi=params.collection_factor,
-        alpha=params.transfer_factor,
-        delta=params.distribution_factor,
-        fixed=np.array([s.hub_fixed_cost for s in sites]),
-        handling=np.array([s.handling_cost for s in sites]),
-        candidates=[k for k, s in enumerate(sites) if s.is_candidate],
-        forced=[k for k, s in enumerate(sites) if s.hub_status == "open"],
-    )
+    return single_allocation_plans(d, data.flow_matrix(), params.hubs, **cost_terms(data, params))
 
 
 @pytest.mark.parametrize("p", [2, 3])
