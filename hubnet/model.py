@@ -192,6 +192,14 @@ def allocation_costs(
     return np.asarray(cost, dtype=float)
 
 
+def hubs_needed(capacities: np.ndarray, volume: float) -> int:
+    """Fewest hubs whose sort capacities (units per day) can hold ``volume`` between them."""
+    caps = np.sort(capacities)[::-1]
+    if not len(caps) or not np.isfinite(caps[0]):
+        return 1
+    return int(np.searchsorted(np.cumsum(caps), volume * (1 - 1e-12))) + 1
+
+
 def _single_allocation(
     data: NetworkData, d: np.ndarray, params: HubModelParams, cand: list[int]
 ) -> HubModel:
@@ -228,6 +236,21 @@ def _single_allocation(
 
     if params.hubs is not None:
         prob += _expr([(x[k, k], 1.0) for k in cand]) == params.hubs, "hub_count"
+    elif params.capacitated:
+        # As many hubs as the largest sort capacities need to hold all the
+        # volume: implied for whole hubs, it cuts off relaxations that open
+        # hubs in part (AP, 25 sites, tight fixed costs and capacities: LP
+        # bound 333,272 -> 340,038 against the optimum 348,369; CBC 13.0 s
+        # -> 7.3 s).
+        caps = np.array(
+            [
+                np.inf if data.sites[k].sort_capacity is None else data.sites[k].sort_capacity
+                for k in cand
+            ]
+        )
+        least = hubs_needed(caps, float(out_vol.sum()))
+        if least > 1:
+            prob += _expr([(x[k, k], 1.0) for k in cand]) >= least, "hubs_needed"
     for i in range(n):
         prob += _expr([(x[i, k], 1.0) for k in cand]) == 1, f"assign_{i}"
         for k in cand:

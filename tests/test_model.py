@@ -23,7 +23,7 @@ from bruteforce import brute_force
 from hubnet.config import HubModelParams, SolverParams
 from hubnet.data import Demand, NetworkData, Site
 from hubnet.heuristics import starting_plan
-from hubnet.model import build_model
+from hubnet.model import build_model, hubs_needed
 from hubnet.solve import run_solver, solve_network
 
 ALPHAS = (0.2, 0.4, 0.6, 0.8, 1.0)
@@ -185,6 +185,67 @@ def test_tiny_random_against_enumeration(
         if capacitated:
             for h in sol.hubs:
                 assert h.capacity is None or h.inbound <= h.capacity + 1e-6
+
+
+def test_hubs_needed_counts_the_largest_capacities() -> None:
+    # Arithmetic: capacities 5, 3, 2 hold 7 or 8 units with two hubs (5 + 3),
+    # 8.1 or 10 need all three; no capacity set (inf) means one hub will do.
+    caps = np.array([2.0, 5.0, 3.0])
+    assert [hubs_needed(caps, v) for v in (4.0, 7.0, 8.0, 8.1, 10.0)] == [1, 2, 2, 3, 3]
+    assert hubs_needed(np.array([np.inf, 1.0]), 50.0) == 1
+
+
+def test_capacitated_model_asks_for_the_hubs_its_capacities_need() -> None:
+    # The row is in the model wherever the capacities need two hubs or more;
+    # test_tiny_random_against_enumeration checks, against brute force, that
+    # the optimum is unchanged on the same networks.
+    rows = 0
+    for seed in range(6):
+        data, xy, extra = _random_network(seed)
+        d = np.sqrt(((xy[:, None] - xy[None]) ** 2).sum(-1))
+        model = build_model(data, d, HubModelParams(allocation="single", capacitated=True))
+        caps = np.asarray(extra["capacity"])[np.asarray(extra["candidates"])]
+        least = hubs_needed(caps, float(data.flow_matrix().sum()))
+        row = model.problem.constraints.get("hubs_needed")
+        assert (row is not None) == (least > 1)
+        if row is not None:
+            assert row.constant == -least
+            rows += 1
+    assert rows >= 2
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_capacitated_optimum_with_as_few_hubs_as_capacities_allow(seed: int) -> None:
+    # Reference: tests/bruteforce.py (every hub set and allocation within the
+    # capacities). Fixed costs 20x higher than in the tiny cases above make
+    # the optimum open as few hubs as the capacities allow, where the
+    # hubs_needed row is tight: a row asking for one hub more fails here.
+    import dataclasses
+
+    data, xy, extra = _random_network(seed)
+    sites = tuple(dataclasses.replace(s, hub_fixed_cost=20 * s.hub_fixed_cost) for s in data.sites)
+    data = dataclasses.replace(data, sites=sites)
+    d = np.sqrt(((xy[:, None] - xy[None]) ** 2).sum(-1))
+    params = HubModelParams(allocation="single", capacitated=True, transfer_factor=0.6)
+    want, hubs = brute_force(
+        d,
+        data.flow_matrix(),
+        allocation="single",
+        p=None,
+        alpha=0.6,
+        fixed=20 * np.asarray(extra["fixed"]),
+        handling=extra["handling"],  # type: ignore[arg-type]
+        capacity=extra["capacity"],  # type: ignore[arg-type]
+        candidates=extra["candidates"],  # type: ignore[arg-type]
+    )
+    if not np.isfinite(want):
+        pytest.skip("no capacity-feasible plan for this seed")
+    caps = np.asarray(extra["capacity"])[np.asarray(extra["candidates"])]
+    assert len(hubs) == hubs_needed(caps, float(data.flow_matrix().sum()))
+    for solver in ("highs", "cbc"):
+        sol = solve_network(data, d, params, SolverParams(name=solver))  # type: ignore[arg-type]
+        assert sol.stats.status == "optimal"
+        assert sol.costs["total"] == pytest.approx(want, rel=1e-7), solver
 
 
 @pytest.mark.parametrize(("dataset", "n", "p"), [("cab", 15, 3), ("ap", 20, 4), ("cab", 25, 2)])
