@@ -1406,8 +1406,9 @@ def _solve_by_hub_sets(
     better: Start = (found.hubs, found.assign, found.cost)
     if not found.proven:
         progress(
-            f"{found.allocated} of {found.kept} hub sets allocated exactly before the time "
-            f"limit (best {found.cost:,.2f}): solving the flow model"
+            f"hub-set search stopped ({found.stopped}: {found.kept} sets within the start's "
+            f"cost, {found.allocated} allocated exactly; best {found.cost:,.2f}): "
+            "solving the flow model"
         )
         return None, better
     seconds = found.bound_seconds + found.allocate_seconds

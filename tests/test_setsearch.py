@@ -181,6 +181,25 @@ def test_search_applies_only_where_it_is_exact() -> None:
         assert search_hub_sets(data, d, params, ([0, 1], np.zeros(7, dtype=int), 1e9)) is None
 
 
+def test_search_gives_up_on_too_many_hub_sets(monkeypatch: pytest.MonkeyPatch) -> None:
+    # A weak bound keeps many sets; past MAX_KEPT the search hands back the
+    # start unproven (the flow model follows), instead of allocating them all.
+    import hubnet.setsearch
+
+    data, d, _f, _h = random_network(5)
+    params = HubModelParams(allocation="single", hubs=3, transfer_factor=1.0)
+    costs, plans = _plans(data, d, params)
+    r = int(np.argmax(costs))
+    start = (sorted(set(plans[r].tolist())), plans[r], float(costs[r]))
+    full = search_hub_sets(data, d, params, start)
+    assert full is not None and full.proven and full.kept > 3
+    monkeypatch.setattr(hubnet.setsearch, "MAX_KEPT", 3)
+    found = search_hub_sets(data, d, params, start)
+    assert found is not None and not found.proven
+    assert found.stopped == "too many hub sets" and found.allocated == 0
+    assert found.cost == pytest.approx(float(costs[r]))
+
+
 def test_search_out_of_time_gives_up() -> None:
     data, d, _f, _h = random_network(3)
     params = HubModelParams(allocation="single", hubs=3)
