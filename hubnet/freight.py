@@ -55,9 +55,14 @@ from hubnet.data import DistanceMatrix, NetworkData
 from hubnet.emissions import load_fuels
 from hubnet.errors import InfeasibleError, InputError, NoSolutionError, Problem, SolverError
 from hubnet.fleet import TIERS, FreightParams, Tier, VehicleClass
-from hubnet.heuristics import sort_capacities
 from hubnet.hours import load_rules, time_legs
-from hubnet.model import HubModel, check_plan_possible, check_start_hubs, start_misfit
+from hubnet.model import (
+    HubModel,
+    check_plan_possible,
+    check_start_hubs,
+    sort_capacities,
+    start_misfit,
+)
 from hubnet.solution import Leg, Route, Solution, SolveStats, hub_records
 
 #: Transit times within this many hours of the allowance count as on time.

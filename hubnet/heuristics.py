@@ -12,13 +12,8 @@ import numpy as np
 
 from hubnet.config import HubModelParams
 from hubnet.data import NetworkData
-from hubnet.model import allocation_costs
+from hubnet.model import allocation_costs, sort_capacities
 from hubnet.solution import best_hub_pairs, unit_path_costs
-
-
-def sort_capacities(data: NetworkData) -> np.ndarray:
-    """Each site's sort capacity, units per day (``inf`` where none is set), ``(n,)``."""
-    return np.array([np.inf if s.sort_capacity is None else s.sort_capacity for s in data.sites])
 
 
 class _Pricer:

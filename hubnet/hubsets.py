@@ -77,6 +77,14 @@ def hub_choices(
     return forced, free, need
 
 
+def single_hub_choices(
+    data: NetworkData, params: HubModelParams
+) -> tuple[list[int], list[int], int] | None:
+    """:func:`hub_choices` for single allocation with a hub left to choose, else ``None``."""
+    found = hub_choices(data, params) if params.allocation == "single" else None
+    return None if found is None or found[2] < 1 else found
+
+
 def _choices(data: NetworkData, params: HubModelParams) -> tuple[list[int], list[int], int] | None:
     """:func:`hub_choices` for multiple allocation, else ``None``."""
     return hub_choices(data, params) if params.allocation == "multiple" else None

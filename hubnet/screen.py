@@ -48,7 +48,7 @@ import numpy as np
 from hubnet.config import HubModelParams
 from hubnet.data import NetworkData
 from hubnet.heuristics import _Pricer
-from hubnet.hubsets import hub_choices
+from hubnet.hubsets import single_hub_choices
 
 #: Largest screening done, in (hub sets) x (site pairs) x (hubs per set):
 #: CAB, 25 cities, 4 hubs is 3.2e7.
@@ -93,12 +93,6 @@ class Screen:
     plan: tuple[list[int], np.ndarray, float] | None = None
 
 
-def _choices(data: NetworkData, params: HubModelParams) -> tuple[list[int], list[int], int] | None:
-    """:func:`~hubnet.hubsets.hub_choices` for single allocation with a hub left to choose."""
-    found = hub_choices(data, params) if params.allocation == "single" else None
-    return None if found is None or found[2] < 1 else found
-
-
 def screening_work(data: NetworkData, params: HubModelParams) -> int | None:
     """(hub sets) x (site pairs) x (hubs per set) that :func:`screen_allocations` prices.
 
@@ -106,7 +100,7 @@ def screening_work(data: NetworkData, params: HubModelParams) -> int | None:
     capacities, a free number of hubs, nothing left to choose) or its table
     of pair costs would be too large.
     """
-    found = _choices(data, params)
+    found = single_hub_choices(data, params)
     return None if found is None else _work(data, params, found)
 
 
@@ -119,6 +113,34 @@ def _work(
     if data.n * data.n * q * q > MAX_TABLE:
         return None
     return math.comb(len(free), need) * data.n * data.n * (params.hubs or 1)
+
+
+def _pair_terms(pr: _Pricer, hubs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The bound's terms over the hubs ``hubs`` (site indices), currency per day.
+
+    Returns ``half_own[i, a]`` (``(n, p)``): half of terminal i's own
+    collection, handling and distribution with hub ``hubs[a]``, its volume
+    to itself counted whole; and ``Q[i, j, a, b]`` (``(n, n, p, p)``): half
+    of the pair's transfer via hubs a (i) and b (j) plus j's own cost of
+    the pair with hub b; 0 for j == i.
+    """
+    n = pr.w.shape[0]
+    ar = np.arange(n)
+    w = np.asarray(pr.w, dtype=float)
+    # share[i, j, a]: terminal i's cost with hub hubs[a] for its volume to and from j.
+    share = (
+        w[:, :, None] * (pr.c[:, hubs] + pr.handling[hubs][None, :])[:, None, :]
+        + w.T[:, :, None] * pr.dist[hubs, :].T[:, None, :]
+    )
+    half_own = 0.5 * (share.sum(axis=1) + share[ar, ar])
+    t2 = pr.t2[np.ix_(hubs, hubs)]
+    q = 0.5 * (
+        w[:, :, None, None] * t2[None, None, :, :]
+        + w.T[:, :, None, None] * t2.T[None, None, :, :]
+        + np.transpose(share, (1, 0, 2))[:, :, None, :]
+    )
+    q[ar, ar] = 0.0
+    return half_own, q
 
 
 def screen_allocations(
@@ -163,7 +185,7 @@ def screen_allocations(
         ``None`` when screening does not apply, is too large
         (:data:`MAX_WORK`) or ran out of time.
     """
-    found = _choices(data, params)
+    found = single_hub_choices(data, params)
     work = None if found is None else _work(data, params, found)
     if found is None or work is None or work > MAX_WORK:
         return None
@@ -178,22 +200,7 @@ def screen_allocations(
     pos = {int(k): a for a, k in enumerate(cand)}
 
     pr = _Pricer(data, d, params)
-    w = np.asarray(pr.w, dtype=float)
-    # share[i, j, a]: terminal i's cost with hub cand[a] for its volume to and from j.
-    share = (
-        w[:, :, None] * (pr.c[:, cand] + pr.handling[cand][None, :])[:, None, :]
-        + w.T[:, :, None] * pr.dist[cand, :].T[:, None, :]
-    )
-    half_own = 0.5 * (share.sum(axis=1) + share[np.arange(n), np.arange(n)])  # (n, q)
-    t2 = pr.t2[np.ix_(cand, cand)]
-    # Q[i, j, a, b] = half of: transfer of the pair via hubs a (i) and b (j)
-    # plus j's own cost of the pair with hub b; 0 for j == i.
-    Q = 0.5 * (
-        w[:, :, None, None] * t2[None, None, :, :]
-        + w.T[:, :, None, None] * t2.T[None, None, :, :]
-        + np.transpose(share, (1, 0, 2))[:, :, None, :]
-    )
-    Q[np.arange(n), np.arange(n)] = 0.0
+    half_own, Q = _pair_terms(pr, cand)
     if allowed is not None:
         # Allocations already ruled out: neither end of a pair may use them.
         ruled_out = ~allowed[:, cand]  # (n, q)
@@ -336,23 +343,7 @@ def set_bound(pr: _Pricer, hubs: list[int]) -> float:
     single-allocation plan with exactly these hubs.
     """
     h = np.asarray(sorted(hubs), dtype=np.int64)
-    n = pr.w.shape[0]
-    ar = np.arange(n)
-    w = np.asarray(pr.w, dtype=float)
-    # share[i, j, a]: terminal i's cost with hub h[a] for its volume to and from j.
-    share = (
-        w[:, :, None] * (pr.c[:, h] + pr.handling[h][None, :])[:, None, :]
-        + w.T[:, :, None] * pr.dist[h, :].T[:, None, :]
-    )
-    half_own = 0.5 * (share.sum(axis=1) + share[ar, ar])  # (n, p)
-    t2 = pr.t2[np.ix_(h, h)]
-    # q[i, j, a, b]: half the pair's transfer via h[a] (i) and h[b] (j) plus j's own share.
-    q = 0.5 * (
-        w[:, :, None, None] * t2[None, None, :, :]
-        + w.T[:, :, None, None] * t2.T[None, None, :, :]
-        + np.transpose(share, (1, 0, 2))[:, :, None, :]
-    )
-    q[ar, ar] = 0.0
+    half_own, q = _pair_terms(pr, h)
     for b, site in enumerate(h):  # a hub is allocated to itself: j = site uses h[b] only
         q[:, site, :, :b] = np.inf
         q[:, site, :, b + 1 :] = np.inf

@@ -40,7 +40,7 @@ import numpy as np
 from hubnet.config import HubModelParams
 from hubnet.data import NetworkData
 from hubnet.heuristics import _Pricer, single_allocation_cost
-from hubnet.hubsets import hub_choices, hub_sets_within
+from hubnet.hubsets import hub_sets_within, single_hub_choices
 from hubnet.pathlp import branch_on_path, relax_path
 from hubnet.screen import set_bound
 
@@ -71,10 +71,9 @@ class SetSearch:
     hubs, assign, cost
         The best plan found: hubs (matrix indices, ascending), each site's
         hub, its cost in currency per day.
-    proven
-        Every hub set was allocated exactly or bounded at or above ``cost``.
     stopped
-        Why not, when not: ``"time limit"``, ``"too many hub sets"`` (more
+        Why not every hub set was allocated exactly or bounded at or above
+        ``cost`` (see :attr:`proven`): ``"time limit"``, ``"too many hub sets"`` (more
         than :data:`MAX_KEPT` kept, or the allocations past their budget),
         or ``"a plan priced unlike its relaxation"``; else empty.
     sets
@@ -95,7 +94,6 @@ class SetSearch:
     hubs: list[int]
     assign: np.ndarray
     cost: float
-    proven: bool
     stopped: str
     sets: int
     kept: int
@@ -105,6 +103,11 @@ class SetSearch:
     bound_seconds: float
     allocate_seconds: float
 
+    @property
+    def proven(self) -> bool:
+        """Every hub set was allocated exactly or bounded at or above ``cost``."""
+        return not self.stopped
+
 
 def search_work(data: NetworkData, params: HubModelParams) -> int | None:
     """(hub sets) x (OD pairs) the enumeration prices; ``None`` when the search does not apply.
@@ -112,10 +115,8 @@ def search_work(data: NetworkData, params: HubModelParams) -> int | None:
     It applies to single allocation with a fixed hub count, no sort
     capacities and a hub left to choose.
     """
-    if params.allocation != "single":
-        return None
-    found = hub_choices(data, params)
-    if found is None or found[2] < 1:
+    found = single_hub_choices(data, params)
+    if found is None:
         return None
     _forced, free, need = found
     return math.comb(len(free), need) * data.n * data.n
@@ -205,8 +206,8 @@ def search_hub_sets(
         finish in time; a :class:`SetSearch` with ``proven`` False when
         the exact allocations ran out of time (its plan is the best found).
     """
-    work = search_work(data, params)
-    if work is None:
+    choices = single_hub_choices(data, params)
+    if choices is None:
         return None
     t0 = time.perf_counter()
     deadline = None if time_limit_s is None else t0 + time_limit_s
@@ -253,15 +254,12 @@ def search_hub_sets(
                 break
             if priced < best:
                 best_hubs, best_assign, best = sorted(set(assign.tolist())), assign, priced
-    found_ = hub_choices(data, params)
-    assert found_ is not None  # search_work checked it
     return SetSearch(
         hubs=[int(k) for k in best_hubs],
         assign=np.asarray(best_assign, dtype=np.int64),
         cost=best,
-        proven=not stopped,
         stopped=stopped,
-        sets=math.comb(len(found_[1]), found_[2]),
+        sets=math.comb(len(choices[1]), choices[2]),
         kept=len(sets),
         ruled_out=ruled_out,
         allocated=allocated,

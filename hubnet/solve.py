@@ -33,7 +33,6 @@ from hubnet.errors import InfeasibleError, InputError, NoSolutionError, SolverEr
 from hubnet.heuristics import (
     allocate_to_hubs,
     single_allocation_cost,
-    sort_capacities,
     starting_plan,
 )
 from hubnet.hubsets import MAX_WORK as ENUMERATION_MAX_WORK
@@ -44,6 +43,7 @@ from hubnet.model import (
     build_model,
     check_plan_possible,
     check_start_hubs,
+    sort_capacities,
     start_misfit,
 )
 from hubnet.pathlp import MAX_COLUMNS as PATH_MAX_COLUMNS
