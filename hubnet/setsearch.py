@@ -13,8 +13,9 @@ single-allocation optimum: of the 1,225-230,300 hub sets of AP, 50 sites,
 So:
 
 1. every hub set is priced under multiple allocation
-   (:func:`~hubnet.hubsets.hub_sets_within`, O(C(q, p) n^2)), keeping those
-   whose bound is below the plan in hand;
+   (:func:`~hubnet.hubsets.hub_sets_within`: at most O(C(q, p) n^2), but
+   most sets are ruled out by an O(n) bound first), keeping those whose
+   bound is below the plan in hand;
 2. the sets kept are bounded again, each by the screen's tighter per-set
    bound (:func:`~hubnet.screen.set_bound`, O(n^2 p^2));
 3. those still below the best plan are allocated exactly, cheapest bound first: the path
@@ -25,7 +26,8 @@ So:
 
 Every hub set is then either allocated exactly or bounded above the best
 plan, so that plan is optimal. It applies when the enumeration's work,
-C(q, p) n^2, is at most :data:`MAX_WORK`.
+C(q, p) n^2, is at most :data:`MAX_WORK`; the enumeration gets at most
+half the time limit.
 """
 
 from __future__ import annotations
@@ -44,12 +46,14 @@ from hubnet.hubsets import hub_sets_within, single_hub_choices
 from hubnet.pathlp import branch_on_path, relax_path
 from hubnet.screen import set_bound
 
-#: Largest enumeration, in (hub sets) x (OD pairs): AP, 100 sites, 3 hubs
-#: is 1.6e9 (about 21 s on the benchmark machine).
-MAX_WORK = 2_000_000_000
-#: Work the enumeration prices per second, for deciding whether it fits
-#: the time limit: below the 0.8-1.4e8 measured on the benchmark machine.
-WORK_PER_S = 50_000_000
+#: Largest enumeration, in (hub sets) x (OD pairs), C(q, p) n^2: AP, 100
+#: sites, 4 hubs is 3.9e10 (11 s on the benchmark machine, most sets
+#: ruled out by the bound of :mod:`hubnet.hubsets`); 5 hubs, 7.5e11, took
+#: 200 s and is left to the flow model.
+MAX_WORK = 50_000_000_000
+#: Work the enumeration gets through per second, for deciding whether it
+#: fits the time limit: below the 1-4e9 measured on AP with the bound.
+WORK_PER_S = 1_000_000_000
 #: Most hub sets kept by the first bound that the search goes on with.
 MAX_KEPT = 5_000
 #: Wall time the exact allocations may take: this share of the
@@ -203,7 +207,7 @@ def search_hub_sets(
     -------
     SetSearch or None
         ``None`` when the search does not apply or the enumeration did not
-        finish in time; a :class:`SetSearch` with ``proven`` False when
+        finish in half of ``time_limit_s``; a :class:`SetSearch` with ``proven`` False when
         the exact allocations ran out of time (its plan is the best found).
     """
     choices = single_hub_choices(data, params)
@@ -213,7 +217,10 @@ def search_hub_sets(
     deadline = None if time_limit_s is None else t0 + time_limit_s
     best_hubs, best_assign, best = list(start[0]), np.asarray(start[1]), float(start[2])
     limit = best + REL_TOL * max(1.0, abs(best))
-    sets = hub_sets_within(data, d, params, limit, time_limit_s=time_limit_s)
+    # At most half the time: cut short, the flow model gets the rest.
+    sets = hub_sets_within(
+        data, d, params, limit, time_limit_s=None if time_limit_s is None else 0.5 * time_limit_s
+    )
     if sets is None:
         return None
     t1 = time.perf_counter()

@@ -691,7 +691,7 @@ def _solve_by_enumeration(
     ``None`` when enumeration does not apply, would price more than
     :data:`~hubnet.hubsets.MAX_WORK` (hub sets x OD pairs), would likely
     take over half the time limit (at
-    :data:`~hubnet.hubsets.WORK_PER_S`), or runs out of it.
+    :data:`~hubnet.hubsets.WORK_PER_S`), or does not finish in half of it.
     """
     work = enumeration_work(data, params)
     if work is None or work > ENUMERATION_MAX_WORK:
@@ -702,7 +702,8 @@ def _solve_by_enumeration(
         # the time instead of an enumeration cut short.
         return None
     progress(f"pricing every set of {params.hubs} hubs (multiple allocation)")
-    found = cheapest_hub_set(data, d, params, time_limit_s=opts.time_limit_s)
+    # At most half the limit, so that the model keeps the rest if it is cut short.
+    found = cheapest_hub_set(data, d, params, time_limit_s=None if limit is None else 0.5 * limit)
     if found is None:
         progress("hub sets not all priced within the time limit: solving the model instead")
         return None

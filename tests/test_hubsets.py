@@ -9,15 +9,25 @@ the MILP solved by HiGHS and CBC.
 from __future__ import annotations
 
 import dataclasses
+import itertools
 
 import numpy as np
 import pytest
 from benchdata import ap_network, ap_params, euclid
-from bruteforce import brute_force
+from bruteforce import brute_force, cost_terms, multiple_allocation_cost
+from randomnet import random_network
 from test_model import _multiple_and_enumerated, _random_network
 
-from hubnet.config import SolverParams
-from hubnet.hubsets import MAX_WORK, cheapest_hub_set, enumeration_work
+from hubnet.config import HubModelParams, SolverParams
+from hubnet.heuristics import _MultipleMoves, _Pricer
+from hubnet.hubsets import (
+    MAX_WORK,
+    _leaves,
+    _NearestHubBound,
+    cheapest_hub_set,
+    enumeration_work,
+    hub_choices,
+)
 from hubnet.solve import solve_network
 
 
@@ -112,9 +122,9 @@ def test_out_of_time_gives_way_to_the_model() -> None:
 
 
 def test_too_many_sets_go_to_the_model() -> None:
-    # AP n = 50, p = 5: C(50, 5) 2,500 pairs is over 5e9, far above the
+    # AP n = 100, p = 5: C(100, 5) 10,000 pairs is 7.5e11, far above the
     # work allowed, so the run goes to the MILP route (Benders).
-    data = ap_network(50)
+    data = ap_network(100)
     params = ap_params("multiple", 5)
     work = enumeration_work(data, params)
     assert work is not None and work > 10 * MAX_WORK
@@ -127,20 +137,104 @@ def test_too_many_sets_go_to_the_model() -> None:
 
 
 def test_a_short_time_limit_leaves_the_time_to_the_model() -> None:
-    # AP n = 40, p = 4 (1.5e8 set-pairs, about 1.5 s to enumerate here) with
-    # a 1 s limit: enumeration would likely not finish in half of it, so
-    # the run goes to the model at once and keeps within its limit with a
-    # plan no cheaper than the published optimum (140682.74, Ernst and
+    # AP n = 50, p = 5 (5.3e9 set-pairs, about 5 s at the rate assumed)
+    # with a 2 s limit: enumeration would likely not finish in half of it,
+    # so the run goes to the model at once and keeps within its limit with
+    # a plan no cheaper than the published optimum (129412.60, Ernst and
     # Krishnamoorthy 1998).
-    data = ap_network(40)
+    data = ap_network(50)
     lines: list[str] = []
     sol = solve_network(
         data,
         euclid(data),
-        ap_params("multiple", 4),
-        SolverParams(time_limit_s=1.0),
+        ap_params("multiple", 5),
+        SolverParams(time_limit_s=2.0),
         progress=lines.append,
     )
     assert sol.stats.solver != "enumeration"
     assert not any("pricing every set" in line for line in lines)
-    assert sol.costs["total"] >= 140682.74 - 0.005
+    assert sol.costs["total"] >= 129412.60 - 0.005
+
+
+def _ma_brute(data, d, params, hubs):  # type: ignore[no-untyped-def]
+    """A hub set's multiple-allocation cost from tests/bruteforce.py (the definition)."""
+    terms = cost_terms(data, params)
+    del terms["candidates"], terms["forced"]
+    return multiple_allocation_cost(d, data.flow_matrix(), hubs, **terms)
+
+
+def _bound_values(bound: _NearestHubBound, hubs: tuple[int, ...]) -> np.ndarray:
+    """Each of the bound's sums for one hub set, currency per day."""
+    rows = bound.matrix[:, list(hubs)].min(axis=1)
+    values, _saved = bound.savings(rows, bound.matrix[:, :0])
+    return values
+
+
+@pytest.mark.parametrize("own", [False, True])
+@pytest.mark.parametrize("alpha", [0.2, 0.75, 1.0])
+def test_nearest_hub_bounds_lie_below_every_hub_sets_cost(own: bool, alpha: float) -> None:
+    # Reference: tests/bruteforce.py, every route of every OD pair tried.
+    # Both bounds (nearest hub; triangle inequality) must lie at or below
+    # each hub set's multiple-allocation cost, with handling costs and
+    # zero flows in the data.
+    closest = 0.0
+    for seed in range(3):
+        data, d, _f, _h = random_network(seed + 80, own=own)
+        params = HubModelParams(
+            allocation="multiple", hubs=2, collection_factor=1.5, transfer_factor=alpha
+        )
+        pr = _Pricer(data, d, params)
+        bound = _NearestHubBound(_MultipleMoves(pr), d, params, pr.handling)
+        assert len(bound.const) == 2  # planar distances: both bounds apply
+        for size in (1, 2, 3):
+            for hubs in itertools.combinations(range(data.n), size):
+                routing = _ma_brute(data, d, params, hubs) - pr.fixed[list(hubs)].sum()
+                values = _bound_values(bound, hubs)
+                assert (values <= routing * (1 + 1e-9)).all(), (seed, hubs, values, routing)
+                closest = max(closest, float(values.max() / routing))
+    # Not vacuous: some set's bound comes within 10 % of its cost.
+    assert closest > 0.9
+
+
+def test_the_triangle_bound_is_left_out_where_distances_break_it() -> None:
+    # A user's matrix with a detour shorter than the direct leg: only the
+    # nearest-hub bound applies, and it still lies below every set's cost
+    # (tests/bruteforce.py).
+    data, d, _f, _h = random_network(85)
+    d = d.copy()
+    d[0, 1] = d[1, 0] = d[0, 2] + d[2, 1] + 50.0
+    params = HubModelParams(allocation="multiple", hubs=2, transfer_factor=0.5)
+    pr = _Pricer(data, d, params)
+    bound = _NearestHubBound(_MultipleMoves(pr), d, params, pr.handling)
+    assert len(bound.const) == 1
+    for hubs in itertools.combinations(range(data.n), 2):
+        routing = _ma_brute(data, d, params, hubs) - pr.fixed[list(hubs)].sum()
+        assert _bound_values(bound, hubs)[0] <= routing * (1 + 1e-9)
+
+
+@pytest.mark.parametrize("share", [0.05, 0.3, 0.7])
+def test_pruned_walk_yields_every_set_within_the_limit_and_prunes(share: float) -> None:
+    # Reference: tests/bruteforce.py's cost of every set of 3 hubs of 10.
+    # With the bound, the walk must still yield every set whose cost is
+    # within the limit (at its brute-force cost), and price fewer sets than
+    # the walk without it.
+    data, d, _f, _h = random_network(90, n=10)
+    params = HubModelParams(allocation="multiple", hubs=3, transfer_factor=0.6)
+    priced = {h: _ma_brute(data, d, params, h) for h in itertools.combinations(range(10), 3)}
+    ranked = sorted(priced.values())
+    k = int(share * len(ranked))
+    limit = 0.5 * (ranked[k] + ranked[k + 1])
+    pr = _Pricer(data, d, params)
+    moves = _MultipleMoves(pr)
+    bound = _NearestHubBound(moves, d, params, pr.handling)
+    found = hub_choices(data, params)
+    assert found is not None
+    got: dict[tuple[int, ...], float] = {}
+    for costs, chosen, xs in _leaves(moves, found, None, bound, lambda: limit):
+        for cost, x in zip(costs, xs, strict=True):
+            got[tuple(sorted([*chosen, x]))] = float(cost)
+    within = {h for h, c in priced.items() if c <= limit}
+    assert within <= set(got)
+    for hubs, cost in got.items():
+        assert cost == pytest.approx(priced[hubs], rel=1e-9)
+    assert len(got) < len(priced)
