@@ -711,17 +711,19 @@ def _solve_by_enumeration(
         "enumeration",
         found.cost,
         found.seconds,
-        f"{params.hubs} hubs, multiple allocation: every hub set priced",
+        f"{params.hubs} hubs, multiple allocation: every hub set priced or bounded",
         opts,
         log=(
             f"Multiple allocation with {params.hubs} hubs: each of the {found.sets} hub sets "
-            "priced with every OD pair on its cheapest route through the set; the cheapest, "
+            "bounded from its sites' nearest hubs, and those within the cheapest so far priced "
+            "with every OD pair on its cheapest route through the set; the cheapest, "
             f"{', '.join(data.sites[h].id for h in found.hubs)}, costs {found.cost:.6f} per day "
             f"({found.seconds:.3f} s).\n"
         ),
     )
     progress(
-        f"optimal: {found.sets} hub sets priced in {found.seconds:.2f} s, cost {found.cost:,.2f}"
+        f"optimal: {found.sets} hub sets priced or bounded in {found.seconds:.2f} s, "
+        f"cost {found.cost:,.2f}"
     )
     return evaluate_plan(data, d, params, found.hubs, None, stats, scenario=scenario)
 

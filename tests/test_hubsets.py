@@ -184,7 +184,7 @@ def test_nearest_hub_bounds_lie_below_every_hub_sets_cost(own: bool, alpha: floa
             allocation="multiple", hubs=2, collection_factor=1.5, transfer_factor=alpha
         )
         pr = _Pricer(data, d, params)
-        bound = _NearestHubBound(_MultipleMoves(pr), d, params, pr.handling)
+        bound = _NearestHubBound(_MultipleMoves(pr), d, params, pr.handling, list(range(data.n)))
         assert len(bound.const) == 2  # planar distances: both bounds apply
         for size in (1, 2, 3):
             for hubs in itertools.combinations(range(data.n), size):
@@ -196,6 +196,44 @@ def test_nearest_hub_bounds_lie_below_every_hub_sets_cost(own: bool, alpha: floa
     assert closest > 0.9
 
 
+def test_nearest_hub_bounds_hold_on_one_way_distances_and_any_rate() -> None:
+    # Reference: tests/bruteforce.py. One-way (asymmetric) distances that
+    # obey the triangle inequality (shortest paths over random one-way
+    # legs) and a cost per unit-km other than 1: both bounds still lie at
+    # or below every set's multiple-allocation cost, and the collection
+    # and distribution directions are not swapped.
+    rng = np.random.default_rng(7)
+    data, _d, _f, _h = random_network(86)
+    n = data.n
+    d = rng.uniform(10, 100, size=(n, n))
+    np.fill_diagonal(d, 0.0)
+    for m in range(n):  # shortest paths: the triangle inequality holds
+        d = np.minimum(d, d[:, m][:, None] + d[m, :][None, :])
+    assert not np.allclose(d, d.T)
+    params = HubModelParams(
+        allocation="multiple",
+        hubs=2,
+        collection_factor=2.0,
+        transfer_factor=0.5,
+        distribution_factor=1.2,
+        cost_per_unit_km=0.37,
+    )
+    pr = _Pricer(data, d, params)
+    bound = _NearestHubBound(_MultipleMoves(pr), d, params, pr.handling, list(range(n)))
+    assert len(bound.const) == 2
+    terms = cost_terms(data, params)
+    del terms["candidates"], terms["forced"]
+    closest = 0.0
+    for size in (1, 2, 3):
+        for hubs in itertools.combinations(range(n), size):
+            cost = multiple_allocation_cost(d, data.flow_matrix(), hubs, rate=0.37, **terms)
+            routing = cost - pr.fixed[list(hubs)].sum()
+            values = _bound_values(bound, hubs)
+            assert (values <= routing * (1 + 1e-9)).all(), (hubs, values, routing)
+            closest = max(closest, float(values.max() / routing))
+    assert closest > 0.8
+
+
 def test_the_triangle_bound_is_left_out_where_distances_break_it() -> None:
     # A user's matrix with a detour shorter than the direct leg: only the
     # nearest-hub bound applies, and it still lies below every set's cost
@@ -205,28 +243,39 @@ def test_the_triangle_bound_is_left_out_where_distances_break_it() -> None:
     d[0, 1] = d[1, 0] = d[0, 2] + d[2, 1] + 50.0
     params = HubModelParams(allocation="multiple", hubs=2, transfer_factor=0.5)
     pr = _Pricer(data, d, params)
-    bound = _NearestHubBound(_MultipleMoves(pr), d, params, pr.handling)
+    bound = _NearestHubBound(_MultipleMoves(pr), d, params, pr.handling, list(range(data.n)))
     assert len(bound.const) == 1
     for hubs in itertools.combinations(range(data.n), 2):
         routing = _ma_brute(data, d, params, hubs) - pr.fixed[list(hubs)].sum()
         assert _bound_values(bound, hubs)[0] <= routing * (1 + 1e-9)
 
 
+@pytest.mark.parametrize("forced", [None, 4])
+@pytest.mark.parametrize("p", [2, 3])
 @pytest.mark.parametrize("share", [0.05, 0.3, 0.7])
-def test_pruned_walk_yields_every_set_within_the_limit_and_prunes(share: float) -> None:
-    # Reference: tests/bruteforce.py's cost of every set of 3 hubs of 10.
-    # With the bound, the walk must still yield every set whose cost is
-    # within the limit (at its brute-force cost), and price fewer sets than
-    # the walk without it.
-    data, d, _f, _h = random_network(90, n=10)
-    params = HubModelParams(allocation="multiple", hubs=3, transfer_factor=0.6)
-    priced = {h: _ma_brute(data, d, params, h) for h in itertools.combinations(range(10), 3)}
+def test_pruned_walk_yields_every_set_within_the_limit_and_prunes(
+    share: float, p: int, forced: int | None
+) -> None:
+    # Reference: tests/bruteforce.py's cost of every set of p hubs of 10
+    # (with site 4 forced open: every such set holding it). With the
+    # bound, the walk must still yield every set whose cost is within the
+    # limit (at its brute-force cost), and price fewer sets than the walk
+    # without it.
+    data, d, _f, _h = random_network(90 + p, n=10)
+    if forced is not None:
+        data = _forcing(data, forced)
+    params = HubModelParams(allocation="multiple", hubs=p, transfer_factor=0.6)
+    priced = {
+        h: _ma_brute(data, d, params, h)
+        for h in itertools.combinations(range(10), p)
+        if forced is None or forced in h
+    }
     ranked = sorted(priced.values())
     k = int(share * len(ranked))
     limit = 0.5 * (ranked[k] + ranked[k + 1])
     pr = _Pricer(data, d, params)
     moves = _MultipleMoves(pr)
-    bound = _NearestHubBound(moves, d, params, pr.handling)
+    bound = _NearestHubBound(moves, d, params, pr.handling, list(range(data.n)))
     found = hub_choices(data, params)
     assert found is not None
     got: dict[tuple[int, ...], float] = {}
