@@ -291,7 +291,7 @@ def run_case(case: Case, args: argparse.Namespace, published: dict) -> Outcome:
     opts = SolverParams(
         name=cast(SolverName, args.solver),
         time_limit_s=args.time_limit,
-        threads=1,
+        threads=args.threads,
     )
     pin_highs_to_one_thread()
     start = time.perf_counter()
@@ -620,6 +620,13 @@ def parse_args(argv: list[str] | None = None) -> argparse.Namespace:
         "--time-limit", type=float, default=600.0, help="seconds per instance and per run"
     )
     ap.add_argument(
+        "--threads",
+        type=int,
+        default=1,
+        help="hubnet's threads: HiGHS's and the processes its hub-set walks are split over "
+        "(default 1; the baseline always runs on one)",
+    )
+    ap.add_argument(
         "--baseline",
         action=argparse.BooleanOptionalAction,
         default=True,
@@ -654,7 +661,8 @@ def main(argv: list[str] | None = None) -> int:
     print(
         f"# {len(selected)} instances; solver {args.solver} (baseline "
         f"{'on the same solver' if args.baseline else 'off'}; multiple-allocation baseline "
-        f"{args.ma_baseline}), 1 thread, time limit "
+        f"{args.ma_baseline}), {args.threads} thread{'s' if args.threads > 1 else ''} for "
+        "hubnet, time limit "
         f"{args.time_limit:g} s; {machine()}",
         flush=True,
     )

@@ -228,7 +228,9 @@ class SolverParams:
     gap
         Relative MIP gap at which a plan counts as proven optimal.
     threads
-        Solver threads, or ``None`` for the solver's default.
+        Solver threads, or ``None`` for the solver's default; also the
+        processes a walk over hub sets may be split over (``None``: every
+        usable core).
     log
         Show the solver's own log on the terminal.
     """

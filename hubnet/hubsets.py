@@ -28,9 +28,12 @@ sites, 4 hubs, the single-allocation start as the limit: 213,137 of
 from __future__ import annotations
 
 import math
+import multiprocessing
+import os
 import time
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
@@ -47,6 +50,9 @@ MAX_WORK = 50_000_000_000
 #: Work per second, for deciding whether the enumeration fits a time
 #: limit: 0.6-4e9 measured on AP with the bound.
 WORK_PER_S = 1_000_000_000
+#: Shortest walk (likely seconds on one process) worth splitting over
+#: processes: starting one takes about half a second.
+SPLIT_MIN_S = 2.0
 #: Relative slack before a bound counts as above the limit (rounding in
 #: the sums).
 BOUND_TOL = 1e-9
@@ -241,6 +247,7 @@ def _leaves(
     deadline: float | None,
     bound: _NearestHubBound | None = None,
     limit: Callable[[], float] | None = None,
+    part: tuple[int, int] = (0, 1),
 ) -> Iterator[tuple[np.ndarray, list[int], list[int]]]:
     """The sets of the forced hubs plus ``need`` free ones, priced, in batches.
 
@@ -250,12 +257,20 @@ def _leaves(
     currency per day), sets and whole subtrees whose bound is above the
     limit are left out; every set within it is yielded. Stops early
     (``TimeoutError``) past ``deadline`` (a ``time.perf_counter()`` value).
+
+    ``part = (r, parts)`` walks only part r of ``parts``: the sets whose
+    first two free hubs (the first one when only one is free) sit at
+    positions adding up to r modulo ``parts`` in the walk's candidate
+    order. The parts are disjoint and together hold every set, whatever
+    the limit does in each, and split the work about evenly.
     """
     forced, free, need = found
     fixed = moves.fixed
     base = moves.state(forced) if forced else moves.empty()
     base_fixed = float(fixed[forced].sum())
     if need == 0:
+        if part[0] != 0:
+            return  # the one set is part 0's
         # The forced hubs are the set: as ``chosen`` plus the last of them.
         yield np.array([moves.total(base[0]) + base_fixed]), list(forced[:-1]), list(forced[-1:])
         return
@@ -286,6 +301,14 @@ def _leaves(
         lim = limit()
         return values > lim + BOUND_TOL * max(1.0, abs(lim))
 
+    r, parts = part
+    # The level (free hubs chosen) whose positions decide a set's part.
+    split_level = min(2, need)
+
+    def mine(key: int, first: int, count: int) -> np.ndarray:
+        """Which of the children at positions first.. belong to this part."""
+        return (key + first + np.arange(count)) % parts == r
+
     def walk(
         state: _LazyState,
         rows: np.ndarray | None,
@@ -293,6 +316,7 @@ def _leaves(
         idx: int,
         left: int,
         fixed_so_far: float,
+        key: int,
     ) -> Iterator[tuple[np.ndarray, list[int], list[int]]]:
         if deadline is not None and time.perf_counter() > deadline:
             raise TimeoutError
@@ -300,9 +324,18 @@ def _leaves(
         if priced_bound:
             assert bound is not None and rows is not None and cols is not None
             values, saved = bound.savings(rows, cols[:, idx:])
+        # Children at the split level outside this part are left to the others.
+        split_here = parts > 1 and need - left + 1 == split_level
         if left == 1:
             xs = free[idx:]
             extra = fixed_free[idx:]
+            if split_here:
+                keep = np.flatnonzero(mine(key, idx, len(xs)))
+                if not len(keep):
+                    return
+                xs, extra = [xs[i] for i in keep], extra[keep]
+                if priced_bound:
+                    saved = saved[:, keep]
             if priced_bound:
                 lb = (values[:, None] - saved).max(axis=0) + fixed_so_far + extra
                 keep = np.flatnonzero(~over(lb))
@@ -324,6 +357,8 @@ def _leaves(
             skip = over(
                 sub + fixed_so_far + fixed_free[idx:last] + more * fixed_after[idx + 1 : last + 1]
             )
+        if split_here:
+            skip |= ~mine(key, idx, last - idx)
         for i in range(idx, last):
             if skip[i - idx]:
                 continue
@@ -339,9 +374,10 @@ def _leaves(
                 i + 1,
                 left - 1,
                 fixed_so_far + float(fixed[x]),
+                key + i,
             )
 
-    yield from walk(_LazyState(moves, None, -1, base), rows0, list(forced), 0, need, base_fixed)
+    yield from walk(_LazyState(moves, None, -1, base), rows0, list(forced), 0, need, base_fixed, 0)
 
 
 def cheapest_hub_set(
@@ -350,6 +386,7 @@ def cheapest_hub_set(
     params: HubModelParams,
     *,
     time_limit_s: float | None = None,
+    workers: int = 1,
 ) -> HubSetOptimum | None:
     """The cheapest set of ``params.hubs`` hubs under multiple allocation, proven.
 
@@ -363,6 +400,9 @@ def cheapest_hub_set(
         Multiple allocation, a fixed hub count, no sort capacities.
     time_limit_s
         Give up (``None`` returned) after this long, s.
+    workers
+        Processes to split the walk over (see :func:`split_workers`); the
+        parts share the cheapest cost found so far.
 
     Returns
     -------
@@ -373,26 +413,23 @@ def cheapest_hub_set(
     if found is None:
         return None
     t0 = time.perf_counter()
-    deadline = None if time_limit_s is None else t0 + time_limit_s
-    pricer = _Pricer(data, d, params)
-    moves = _MultipleMoves(pricer)
-    bound = _NearestHubBound(moves, d, params, pricer.handling, [*found[0], *found[1]])
-    # The cheapest cost so far is the limit of the sets still worth pricing.
-    best_cost = [math.inf]
-    best_hubs: list[int] | None = None
-    try:
-        for costs, chosen, xs in _leaves(moves, found, deadline, bound, lambda: best_cost[0]):
-            j = int(np.argmin(costs))
-            if costs[j] < best_cost[0]:
-                best_cost[0], best_hubs = float(costs[j]), [*chosen, xs[j]]
-    except TimeoutError:
+    parts = split_workers(workers, enumeration_work(data, params) or 0)
+    job = _Job("cheapest", data, d, params, math.inf, _wall_deadline(time_limit_s))
+    results = _run_parts(job, parts)
+    if results is None:
         return None
-    if best_hubs is None:
+    best: tuple[float, list[int]] | None = None
+    for res in results:
+        for cost, hubs in res:
+            # Ties go to the smallest hub list, whichever part found it.
+            if best is None or (cost, hubs) < best:
+                best = (cost, hubs)
+    if best is None:
         return None
     _forced, free, need = found
     return HubSetOptimum(
-        sorted(best_hubs),
-        best_cost[0],
+        sorted(best[1]),
+        best[0],
         math.comb(len(free), need),
         time.perf_counter() - t0,
     )
@@ -405,6 +442,7 @@ def hub_sets_within(
     limit: float,
     *,
     time_limit_s: float | None = None,
+    workers: int = 1,
 ) -> list[tuple[float, list[int]]] | None:
     """Every set of ``params.hubs`` hubs whose multiple-allocation cost is at most ``limit``.
 
@@ -414,7 +452,8 @@ def hub_sets_within(
     bound on every single-allocation plan with those hubs (and the same
     for any allocation rule). ``params`` may say either allocation; the
     sets are priced under multiple allocation. ``limit`` is in currency per
-    day.
+    day. ``workers``: processes to split the walk over (see
+    :func:`split_workers`).
 
     Returns
     -------
@@ -426,16 +465,174 @@ def hub_sets_within(
     found = hub_choices(data, params)
     if found is None:
         return None
-    deadline = None if time_limit_s is None else time.perf_counter() + time_limit_s
-    pricer = _Pricer(data, d, params)
-    moves = _MultipleMoves(pricer)
-    bound = _NearestHubBound(moves, d, params, pricer.handling, [*found[0], *found[1]])
-    out: list[tuple[float, list[int]]] = []
-    try:
-        for costs, chosen, xs in _leaves(moves, found, deadline, bound, lambda: limit):
-            for j in np.flatnonzero(costs <= limit):
-                out.append((float(costs[j]), sorted([*chosen, xs[j]])))
-    except TimeoutError:
+    _forced, free, need = found
+    work = math.comb(len(free), need) * data.n * data.n
+    job = _Job("within", data, d, params, limit, _wall_deadline(time_limit_s))
+    results = _run_parts(job, split_workers(workers, work))
+    if results is None:
         return None
+    out = [pair for res in results for pair in res]
     out.sort()
     return out
+
+
+# --------------------------------------------------------------------------
+# The walk split over processes
+# --------------------------------------------------------------------------
+
+
+def split_workers(workers: int, work: int) -> int:
+    """Processes worth splitting a walk of ``work`` over, at most ``workers``.
+
+    One unless the walk likely takes :data:`SPLIT_MIN_S` or more on one
+    (at :data:`WORK_PER_S`: starting a process costs about half a second),
+    the processor has more than one core for this process, and this
+    process may fork others (a daemon process, such as a Dask worker,
+    may not; nor can a process on a platform without ``fork``).
+    """
+    if workers <= 1 or work < SPLIT_MIN_S * WORK_PER_S:
+        return 1
+    if multiprocessing.current_process().daemon or not _CAN_FORK:
+        return 1
+    return max(1, min(workers, usable_cores()))
+
+
+#: Parts run in forked children, which need no re-import of the caller's
+#: script (a script without a ``__main__`` guard, a notebook): on platforms
+#: without ``fork`` the walk stays in one process.
+_CAN_FORK = "fork" in multiprocessing.get_all_start_methods()
+
+
+def usable_cores() -> int:
+    """Cores this process may run on."""
+    if hasattr(os, "sched_getaffinity"):
+        return len(os.sched_getaffinity(0))
+    return os.cpu_count() or 1
+
+
+@dataclass(frozen=True)
+class _Job:
+    """One walk to split: what each part needs (picklable).
+
+    ``kind`` is ``"cheapest"`` (limit: the cheapest cost so far, starting
+    at ``limit``) or ``"within"`` (a fixed ``limit``); ``deadline`` is a
+    ``time.time()`` value (comparable across processes) or ``None``.
+    """
+
+    kind: str
+    data: NetworkData
+    d: np.ndarray
+    params: HubModelParams
+    limit: float
+    deadline: float | None
+
+
+def _wall_deadline(time_limit_s: float | None) -> float | None:
+    return None if time_limit_s is None else time.time() + time_limit_s
+
+
+def _walk_part(
+    job: _Job, part: tuple[int, int], shared: Any = None
+) -> list[tuple[float, list[int]]]:
+    """Part ``part`` of the walk: its sets within the limit, or its cheapest.
+
+    ``shared``: a ``multiprocessing.Value`` holding the cheapest cost any
+    part has found (``"cheapest"`` only). Raises ``TimeoutError`` past the
+    deadline.
+    """
+    found = hub_choices(job.data, job.params)
+    assert found is not None
+    deadline = None if job.deadline is None else time.perf_counter() + (job.deadline - time.time())
+    pricer = _Pricer(job.data, job.d, job.params)
+    moves = _MultipleMoves(pricer)
+    bound = _NearestHubBound(moves, job.d, job.params, pricer.handling, [*found[0], *found[1]])
+    out: list[tuple[float, list[int]]] = []
+    if job.kind == "within":
+        lim = job.limit
+        for costs, chosen, xs in _leaves(moves, found, deadline, bound, lambda: lim, part):
+            for j in np.flatnonzero(costs <= lim):
+                out.append((float(costs[j]), sorted([*chosen, xs[j]])))
+        return out
+    # The cheapest cost so far (here or, shared, in any part) is the limit
+    # of the sets still worth pricing.
+    best = [job.limit]
+
+    def limit() -> float:
+        return best[0] if shared is None else min(best[0], shared.value)
+
+    for costs, chosen, xs in _leaves(moves, found, deadline, bound, limit, part):
+        low = float(costs.min())
+        if low > best[0]:
+            continue
+        if low < best[0]:
+            best[0], out = low, []
+            if shared is not None:
+                with shared.get_lock():
+                    shared.value = min(shared.value, low)
+        # Every set at the cheapest cost, so that ties are broken the same
+        # way however the walk was split.
+        out += [(low, sorted([*chosen, xs[j]])) for j in np.flatnonzero(costs == low)]
+    return out
+
+
+def _part_main(conn: Any, job: _Job, part: tuple[int, int], shared: Any) -> None:
+    """A forked child: walk one part, send its result (``None``: out of time).
+
+    It leaves by ``os._exit``, without the interpreter's clean-up: a lock
+    another thread of the parent held at the fork (its standard output,
+    say) would otherwise hang the child's exit.
+    """
+    try:
+        conn.send(_walk_part(job, part, shared))
+    except TimeoutError:
+        conn.send(None)
+    finally:
+        conn.close()
+        os._exit(0)
+
+
+def _run_parts(job: _Job, parts: int) -> list[list[tuple[float, list[int]]]] | None:
+    """Walk ``job`` in ``parts`` parts: this process one, a child process each other.
+
+    Returns every part's result, or ``None`` when any part ran out of time
+    or its process failed (the caller then has no proof and falls back).
+    """
+    if parts <= 1:
+        try:
+            return [_walk_part(job, (0, 1))]
+        except TimeoutError:
+            return None
+    ctx = multiprocessing.get_context("fork")
+    shared = ctx.Value("d", job.limit) if job.kind == "cheapest" else None
+    children = []
+    for r in range(1, parts):
+        here, there = ctx.Pipe(duplex=False)
+        proc = ctx.Process(target=_part_main, args=(there, job, (r, parts), shared), daemon=True)
+        proc.start()
+        there.close()
+        children.append((proc, here))
+    results: list[list[tuple[float, list[int]]]] = []
+    ok = True
+    try:
+        try:
+            results.append(_walk_part(job, (0, parts), shared))
+        except TimeoutError:
+            ok = False
+        for _proc, conn in children:
+            if not ok:
+                break
+            wait = None if job.deadline is None else max(job.deadline - time.time(), 0.0) + 5.0
+            got = conn.recv() if conn.poll(wait) else None
+            if got is None:
+                ok = False
+            else:
+                results.append(got)
+    except (EOFError, OSError):
+        ok = False  # a child died without an answer
+    finally:
+        for proc, conn in children:
+            if proc.is_alive():
+                proc.terminate()
+            proc.join()
+            conn.close()
+    return results if ok else None

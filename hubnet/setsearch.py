@@ -49,10 +49,13 @@ from hubnet.screen import set_bound
 #: Largest enumeration, in (hub sets) x (OD pairs), C(q, p) n^2: AP, 100
 #: sites, 4 hubs is 3.9e10 (11 s on the benchmark machine, most sets
 #: ruled out by the bound of :mod:`hubnet.hubsets`); 5 hubs, 7.5e11, took
-#: 200 s and is left to the flow model.
-MAX_WORK = 50_000_000_000
-#: Work the enumeration gets through per second, for deciding whether it
-#: fits the time limit: below the 1-4e9 measured on AP with the bound.
+#: 225 s on one process and 129 s on two, then 71 s of exact allocations,
+#: where the flow model proves nothing in 300 s. Larger walks are left to
+#: the flow model.
+MAX_WORK = 1_000_000_000_000
+#: Work the enumeration gets through per second and process, for deciding
+#: whether it fits the time limit: below the 1-4e9 measured on AP with the
+#: bound.
 WORK_PER_S = 1_000_000_000
 #: Most hub sets kept by the first bound that the search goes on with.
 MAX_KEPT = 5_000
@@ -184,6 +187,7 @@ def search_hub_sets(
     *,
     threads: int | None = None,
     time_limit_s: float | None = None,
+    workers: int = 1,
 ) -> SetSearch | None:
     """The optimal single-allocation plan with ``params.hubs`` hubs, or the best found in time.
 
@@ -202,6 +206,9 @@ def search_hub_sets(
         HiGHS threads for the exact allocations.
     time_limit_s
         Wall time the search may take, s.
+    workers
+        Processes the hub sets' pricing may be split over
+        (:func:`~hubnet.hubsets.split_workers`).
 
     Returns
     -------
@@ -219,7 +226,12 @@ def search_hub_sets(
     limit = best + REL_TOL * max(1.0, abs(best))
     # At most half the time: cut short, the flow model gets the rest.
     sets = hub_sets_within(
-        data, d, params, limit, time_limit_s=None if time_limit_s is None else 0.5 * time_limit_s
+        data,
+        d,
+        params,
+        limit,
+        time_limit_s=None if time_limit_s is None else 0.5 * time_limit_s,
+        workers=workers,
     )
     if sets is None:
         return None

@@ -37,7 +37,7 @@ from hubnet.heuristics import (
 )
 from hubnet.hubsets import MAX_WORK as ENUMERATION_MAX_WORK
 from hubnet.hubsets import WORK_PER_S as ENUMERATION_WORK_PER_S
-from hubnet.hubsets import cheapest_hub_set, enumeration_work
+from hubnet.hubsets import cheapest_hub_set, enumeration_work, split_workers, usable_cores
 from hubnet.model import (
     HubModel,
     build_model,
@@ -697,13 +697,19 @@ def _solve_by_enumeration(
     if work is None or work > ENUMERATION_MAX_WORK:
         return None
     limit = opts.time_limit_s
-    if limit is not None and work / ENUMERATION_WORK_PER_S > 0.5 * limit:
+    workers = split_workers(walk_workers(opts), work)
+    if limit is not None and work / (ENUMERATION_WORK_PER_S * workers) > 0.5 * limit:
         # Likely not to finish: the model, with its start and bound, gets
         # the time instead of an enumeration cut short.
         return None
-    progress(f"pricing every set of {params.hubs} hubs (multiple allocation)")
+    progress(
+        f"pricing every set of {params.hubs} hubs (multiple allocation)"
+        + (f", split over {workers} processes" if workers > 1 else "")
+    )
     # At most half the limit, so that the model keeps the rest if it is cut short.
-    found = cheapest_hub_set(data, d, params, time_limit_s=None if limit is None else 0.5 * limit)
+    found = cheapest_hub_set(
+        data, d, params, time_limit_s=None if limit is None else 0.5 * limit, workers=workers
+    )
     if found is None:
         progress("hub sets not all priced within the time limit: solving the model instead")
         return None
@@ -1378,7 +1384,13 @@ def _set_search_applies(
     if work is None or work > SET_SEARCH_MAX_WORK:
         return False
     limit = opts.time_limit_s
-    return limit is None or work / SET_SEARCH_WORK_PER_S <= 0.5 * limit
+    workers = split_workers(walk_workers(opts), work)
+    return limit is None or work / (SET_SEARCH_WORK_PER_S * workers) <= 0.5 * limit
+
+
+def walk_workers(opts: SolverParams) -> int:
+    """Processes the hub-set walks may use: the run's threads, else every usable core."""
+    return opts.threads if opts.threads else usable_cores()
 
 
 def _solve_by_hub_sets(
@@ -1396,12 +1408,20 @@ def _solve_by_hub_sets(
     (the flow model follows); and the best plan found, as the start for
     what follows.
     """
+    workers = split_workers(walk_workers(left), search_work(data, params) or 0)
     progress(
         f"pricing every set of {params.hubs} hubs under multiple allocation, "
         f"a lower bound on single allocation (start {start[2]:,.2f})"
+        + (f", split over {workers} processes" if workers > 1 else "")
     )
     found = search_hub_sets(
-        data, d, params, start, threads=left.threads, time_limit_s=left.time_limit_s
+        data,
+        d,
+        params,
+        start,
+        threads=left.threads,
+        time_limit_s=left.time_limit_s,
+        workers=workers,
     )
     if found is None:
         progress("hub sets not all priced within the time limit: solving the flow model")

@@ -18,6 +18,7 @@ from bruteforce import brute_force, cost_terms, multiple_allocation_cost
 from randomnet import random_network
 from test_model import _multiple_and_enumerated, _random_network
 
+from hubnet import hubsets
 from hubnet.config import HubModelParams, SolverParams
 from hubnet.heuristics import _MultipleMoves, _Pricer
 from hubnet.hubsets import (
@@ -287,3 +288,108 @@ def test_pruned_walk_yields_every_set_within_the_limit_and_prunes(
     for hubs, cost in got.items():
         assert cost == pytest.approx(priced[hubs], rel=1e-9)
     assert len(got) < len(priced)
+
+
+@pytest.mark.parametrize("forced", [None, 4])
+@pytest.mark.parametrize("p", [0, 1, 2, 3])
+@pytest.mark.parametrize("parts", [2, 3])
+@pytest.mark.parametrize("share", [None, 0.3])
+def test_the_walks_parts_are_disjoint_and_hold_every_set(
+    share: float | None, parts: int, p: int, forced: int | None
+) -> None:
+    # Reference: tests/bruteforce.py's cost of every set of p hubs of 10.
+    # Walked in parts, every set within the limit (every set, with no
+    # bound) must come out of exactly one part, at its brute-force cost.
+    if p == 0 and forced is None:
+        pytest.skip("no hub to choose and none forced")
+    data, d, _f, _h = random_network(70 + p, n=10)
+    if forced is not None:
+        data = _forcing(data, forced)
+    params = HubModelParams(
+        allocation="multiple", hubs=p + (forced is not None), transfer_factor=0.6
+    )
+    found = hub_choices(data, params)
+    assert found is not None
+    priced = {
+        h: _ma_brute(data, d, params, h)
+        for h in itertools.combinations(range(10), params.hubs)
+        if forced is None or forced in h
+    }
+    limit = np.inf
+    bound = None
+    pr = _Pricer(data, d, params)
+    moves = _MultipleMoves(pr)
+    if share is not None and len(priced) > 1:
+        ranked = sorted(priced.values())
+        k = int(share * len(ranked))
+        limit = 0.5 * (ranked[k] + ranked[k + 1])
+        bound = _NearestHubBound(moves, d, params, pr.handling, list(range(data.n)))
+    seen: list[tuple[int, ...]] = []
+    for r in range(parts):
+        for costs, chosen, xs in _leaves(moves, found, None, bound, lambda: limit, (r, parts)):
+            for cost, x in zip(costs, xs, strict=True):
+                hubs = tuple(sorted([*chosen, x]))
+                seen.append(hubs)
+                assert cost == pytest.approx(priced[hubs], rel=1e-9)
+    assert len(seen) == len(set(seen))  # no set in two parts
+    assert {h for h, c in priced.items() if c <= limit} <= set(seen)
+
+
+@pytest.fixture
+def split_small_walks(monkeypatch: pytest.MonkeyPatch) -> None:
+    """Split even the smallest walk over processes (normally only those of 2 s or more)."""
+    monkeypatch.setattr(hubsets, "SPLIT_MIN_S", 0.0)
+
+
+@pytest.mark.skipif(not hubsets._CAN_FORK, reason="the walk is split only where fork exists")
+@pytest.mark.parametrize("seed", range(4))
+@pytest.mark.usefixtures("split_small_walks")
+def test_walks_split_over_processes_match_brute_force(seed: int) -> None:
+    # Two real processes (this one and a forked child) share the walk;
+    # tests/bruteforce.py prices every set.
+    data, xy, _extra = _random_network(seed, n=9)
+    d = np.sqrt(((xy[:, None] - xy[None]) ** 2).sum(-1))
+    params, want = _multiple_and_enumerated(data, d, 3)
+    assert hubsets.split_workers(2, enumeration_work(data, params) or 0) == min(
+        2, hubsets.usable_cores()
+    )
+    found = cheapest_hub_set(data, d, params, workers=2)
+    assert found is not None
+    assert found.cost == pytest.approx(want, rel=1e-9)
+    assert found == dataclasses.replace(
+        cheapest_hub_set(data, d, params), seconds=found.seconds
+    )  # the same set, ties broken alike
+    limit = want * 1.2
+    split = hubsets.hub_sets_within(data, d, params, limit, workers=2)
+    whole = hubsets.hub_sets_within(data, d, params, limit)
+    assert split is not None and whole is not None
+    assert [h for _c, h in split] == [h for _c, h in whole]
+    assert [c for c, _h in split] == pytest.approx([c for c, _h in whole], rel=1e-12)
+
+
+@pytest.mark.skipif(not hubsets._CAN_FORK, reason="the walk is split only where fork exists")
+@pytest.mark.usefixtures("split_small_walks")
+def test_a_split_walk_out_of_time_gives_no_answer() -> None:
+    data = ap_network(25)
+    params = ap_params("multiple", 5)
+    assert cheapest_hub_set(data, euclid(data), params, time_limit_s=0.0, workers=2) is None
+    assert (
+        hubsets.hub_sets_within(data, euclid(data), params, 1e12, time_limit_s=0.0, workers=2)
+        is None
+    )
+
+
+def test_walks_stay_in_one_process_when_small_or_not_allowed(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    big = int(10 * hubsets.SPLIT_MIN_S * hubsets.WORK_PER_S)
+    assert hubsets.split_workers(2, 1000) == 1  # not worth a process
+    assert hubsets.split_workers(1, big) == 1  # one asked for
+    assert hubsets.split_workers(64, big) <= hubsets.usable_cores()
+
+    class _Daemon:
+        daemon = True
+
+    # A daemon process (a Dask worker, say) may not start children.
+    monkeypatch.setattr(hubsets.multiprocessing, "current_process", lambda: _Daemon())
+    assert hubsets.split_workers(2, big) == 1

@@ -18,6 +18,7 @@ from benchdata import ap_network, ap_params, euclid, reference_dir
 from bruteforce import cost_terms, multiple_allocation_cost, single_allocation_plans
 from randomnet import random_network
 
+from hubnet import hubsets
 from hubnet.config import HubModelParams, SolverParams
 from hubnet.data import NetworkData
 from hubnet.heuristics import _Pricer, single_allocation_cost
@@ -232,3 +233,24 @@ def test_ap40_hub_set_search_reaches_the_published_optimum(p: int) -> None:
     assert abs(sol.costs["total"] - want) <= 0.005
     assert sorted(sol.hub_ids, key=int) == hubs
     assert "hub sets bounded" in sol.stats.formulation, lines
+
+
+@pytest.mark.skipif(not hubsets._CAN_FORK, reason="the walk is split only where fork exists")
+def test_ap40_search_split_over_two_processes_reaches_the_published_optimum(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    # Reference: AP40_SINGLE above (published). Every walk, however
+    # small, split over two real processes.
+    reference_dir()
+    monkeypatch.setattr(hubsets, "SPLIT_MIN_S", 0.0)
+    data = ap_network(40)
+    lines: list[str] = []
+    sol = solve_network(
+        data, euclid(data), ap_params("single", 3), SolverParams(threads=2), progress=lines.append
+    )
+    want, hubs = AP40_SINGLE[3]
+    assert abs(sol.costs["total"] - want) <= 0.005
+    assert sorted(sol.hub_ids, key=int) == hubs
+    assert "hub sets bounded" in sol.stats.formulation, lines
+    if hubsets.usable_cores() > 1:
+        assert any("split over 2 processes" in line for line in lines), lines
