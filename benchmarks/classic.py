@@ -273,15 +273,18 @@ def pin_highs_to_one_thread() -> None:
         import highspy
     except ImportError:
         return
-    from hubnet._highs import silence_highs_banner
+    from hubnet import _highs
 
-    silence_highs_banner()
+    _highs.silence_highs_banner()
     highspy.Highs.resetGlobalScheduler(True)
     h = highspy.Highs()
     h.setOptionValue("output_flag", False)
     h.setOptionValue("threads", 1)
     h.addVar(0.0, 1.0)
     h.run()
+    # Tell hubnet the pool's size, or a run with ``--threads 2`` would ask a
+    # one-thread pool for two threads and its LPs would fail.
+    _highs._POOL_THREADS = 1
 
 
 def run_case(case: Case, args: argparse.Namespace, published: dict) -> Outcome:
