@@ -53,6 +53,9 @@ WORK_PER_S = 1_000_000_000
 #: Shortest walk (likely seconds on one process) worth splitting over
 #: processes: starting one takes about half a second.
 SPLIT_MIN_S = 2.0
+#: Relative difference under which two hub sets' costs count as tied
+#: (below :data:`BOUND_TOL`, so that no tied set is pruned).
+TIE_TOL = 1e-11
 #: Relative slack before a bound counts as above the limit (rounding in
 #: the sums).
 BOUND_TOL = 1e-9
@@ -418,14 +421,12 @@ def cheapest_hub_set(
     results = _run_parts(job, parts)
     if results is None:
         return None
-    best: tuple[float, list[int]] | None = None
-    for res in results:
-        for cost, hubs in res:
-            # Ties go to the smallest hub list, whichever part found it.
-            if best is None or (cost, hubs) < best:
-                best = (cost, hubs)
-    if best is None:
+    pairs = [pair for res in results for pair in res]
+    if not pairs:
         return None
+    low = min(cost for cost, _hubs in pairs)
+    # Ties (to rounding) go to the smallest hub list, whichever part found it.
+    best = min((hubs, cost) for cost, hubs in pairs if _tied(cost, low))[::-1]
     _forced, free, need = found
     return HubSetOptimum(
         sorted(best[1]),
@@ -562,17 +563,24 @@ def _walk_part(
 
     for costs, chosen, xs in _leaves(moves, found, deadline, bound, limit, part):
         low = float(costs.min())
-        if low > best[0]:
-            continue
         if low < best[0]:
-            best[0], out = low, []
-            if shared is not None:
-                with shared.get_lock():
-                    shared.value = min(shared.value, low)
-        # Every set at the cheapest cost, so that ties are broken the same
-        # way however the walk was split.
-        out += [(low, sorted([*chosen, xs[j]])) for j in np.flatnonzero(costs == low)]
+            best[0] = low
+            out = [pair for pair in out if _tied(pair[0], low)]
+            if shared is not None and low < shared.value:
+                # Unlocked: a lost update only prunes less.
+                shared.value = low
+        # Every set tied with the cheapest: a set's cost may differ in its
+        # last bits with the batch it was priced in, so ties are broken by
+        # the hub lists, the same however the walk was split.
+        out += [
+            (float(costs[j]), sorted([*chosen, xs[j]]))
+            for j in np.flatnonzero(costs <= best[0] + TIE_TOL * abs(best[0]))
+        ]
     return out
+
+
+def _tied(cost: float, best: float) -> bool:
+    return cost <= best + TIE_TOL * abs(best)
 
 
 def _part_main(conn: Any, job: _Job, part: tuple[int, int], shared: Any) -> None:
@@ -586,6 +594,8 @@ def _part_main(conn: Any, job: _Job, part: tuple[int, int], shared: Any) -> None
         conn.send(_walk_part(job, part, shared))
     except TimeoutError:
         conn.send(None)
+    except BaseException as exc:  # reported by the parent, not mistaken for a timeout
+        conn.send(f"{type(exc).__name__}: {exc}")
     finally:
         conn.close()
         os._exit(0)
@@ -603,17 +613,19 @@ def _run_parts(job: _Job, parts: int) -> list[list[tuple[float, list[int]]]] | N
         except TimeoutError:
             return None
     ctx = multiprocessing.get_context("fork")
-    shared = ctx.Value("d", job.limit) if job.kind == "cheapest" else None
-    children = []
-    for r in range(1, parts):
-        here, there = ctx.Pipe(duplex=False)
-        proc = ctx.Process(target=_part_main, args=(there, job, (r, parts), shared), daemon=True)
-        proc.start()
-        there.close()
-        children.append((proc, here))
+    # Lock-free: a child killed while holding a lock would hang the others.
+    shared = ctx.RawValue("d", job.limit) if job.kind == "cheapest" else None
+    children: list[tuple[Any, Any]] = []
     results: list[list[tuple[float, list[int]]]] = []
     ok = True
     try:
+        for r in range(1, parts):
+            here, there = ctx.Pipe(duplex=False)
+            proc = ctx.Process(target=_part_main, args=(there, job, (r, parts), shared))
+            proc.daemon = True
+            children.append((proc, here))
+            proc.start()
+            there.close()
         try:
             results.append(_walk_part(job, (0, parts), shared))
         except TimeoutError:
@@ -623,6 +635,8 @@ def _run_parts(job: _Job, parts: int) -> list[list[tuple[float, list[int]]]] | N
                 break
             wait = None if job.deadline is None else max(job.deadline - time.time(), 0.0) + 5.0
             got = conn.recv() if conn.poll(wait) else None
+            if isinstance(got, str):
+                raise RuntimeError(f"a part of the hub-set walk failed: {got}")
             if got is None:
                 ok = False
             else:
@@ -631,8 +645,9 @@ def _run_parts(job: _Job, parts: int) -> list[list[tuple[float, list[int]]]] | N
         ok = False  # a child died without an answer
     finally:
         for proc, conn in children:
-            if proc.is_alive():
-                proc.terminate()
-            proc.join()
+            if proc.pid is not None:
+                if proc.is_alive():
+                    proc.terminate()
+                proc.join()
             conn.close()
     return results if ok else None

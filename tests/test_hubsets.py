@@ -20,6 +20,7 @@ from test_model import _multiple_and_enumerated, _random_network
 
 from hubnet import hubsets
 from hubnet.config import HubModelParams, SolverParams
+from hubnet.data import Demand, NetworkData, Site
 from hubnet.heuristics import _MultipleMoves, _Pricer
 from hubnet.hubsets import (
     MAX_WORK,
@@ -393,3 +394,58 @@ def test_walks_stay_in_one_process_when_small_or_not_allowed(
     # A daemon process (a Dask worker, say) may not start children.
     monkeypatch.setattr(hubsets.multiprocessing, "current_process", lambda: _Daemon())
     assert hubsets.split_workers(2, big) == 1
+
+
+def _circle(n: int) -> tuple[NetworkData, np.ndarray]:
+    """n sites evenly spaced on a circle, the same flow between every pair: many tied hub sets."""
+    ang = 2 * np.pi * np.arange(n) / n
+    xy = np.c_[50 + 40 * np.cos(ang), 50 + 40 * np.sin(ang)]
+    sites = tuple(
+        Site(id=f"S{i}", name=f"s{i}", x=float(xy[i, 0]), y=float(xy[i, 1]), hub_fixed_cost=100.0)
+        for i in range(n)
+    )
+    demand = tuple(Demand(f"S{i}", f"S{j}", 7.0) for i in range(n) for j in range(n) if i != j)
+    return NetworkData(sites, demand, coordinates="planar"), np.sqrt(
+        ((xy[:, None] - xy[None]) ** 2).sum(-1)
+    )
+
+
+@pytest.mark.parametrize(("n", "p"), [(8, 2), (12, 3), (12, 4)])
+def test_tied_hub_sets_are_broken_alike_however_the_walk_is_split(n: int, p: int) -> None:
+    # Every rotation of a hub set on the circle costs the same (up to the
+    # rounding of the batch it is priced in); tests/bruteforce.py gives the
+    # cost. Split into 1, 2 or 3 parts, with the shared limit unknown or
+    # already at the optimum, the same smallest hub list must win.
+    data, d = _circle(n)
+    params = HubModelParams(allocation="multiple", hubs=p, transfer_factor=0.6)
+    want = min(_ma_brute(data, d, params, h) for h in itertools.combinations(range(n), p))
+    chosen = set()
+    for parts in (1, 2, 3):
+        for start in (np.inf, want * (1 + 1e-12)):
+            job = hubsets._Job("cheapest", data, d, params, start, None)
+            pairs = [pair for r in range(parts) for pair in hubsets._walk_part(job, (r, parts))]
+            low = min(c for c, _h in pairs)
+            assert low == pytest.approx(want, rel=1e-12)
+            chosen.add(tuple(min(h for c, h in pairs if hubsets._tied(c, low))))
+    assert len(chosen) == 1
+
+
+@pytest.mark.skipif(
+    not hubsets._CAN_FORK or hubsets.usable_cores() < 2,
+    reason="the walk is split only where fork exists, over two cores or more",
+)
+@pytest.mark.usefixtures("split_small_walks")
+def test_a_failing_part_is_an_error_not_a_timeout(monkeypatch: pytest.MonkeyPatch) -> None:
+    # A part that fails in its child process must not pass for "out of
+    # time" (which would hide the failure behind a fallback to the model).
+    walk = hubsets._walk_part
+
+    def broken(job, part, shared=None):  # type: ignore[no-untyped-def]
+        if part[0] != 0:
+            raise ValueError("broken part")
+        return walk(job, part, shared)
+
+    monkeypatch.setattr(hubsets, "_walk_part", broken)
+    data = ap_network(10)
+    with pytest.raises(RuntimeError, match="broken part"):
+        cheapest_hub_set(data, euclid(data), ap_params("multiple", 3), workers=2)
