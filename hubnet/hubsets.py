@@ -123,10 +123,17 @@ def enumeration_work(data: NetworkData, params: HubModelParams) -> int | None:
     capacities, or a free number of hubs.
     """
     found = _choices(data, params)
-    if found is None:
-        return None
+    return None if found is None else walk_work(found, data.n)
+
+
+def walk_work(found: tuple[list[int], list[int], int], n: int) -> int:
+    """(hub sets) x (OD pairs), C(q, p) n^2, of a walk over the choices ``found``.
+
+    ``found``: forced hubs, free candidates and how many of those to open
+    (:func:`hub_choices`); ``n``: sites.
+    """
     _forced, free, need = found
-    return math.comb(len(free), need) * data.n * data.n
+    return math.comb(len(free), need) * n * n
 
 
 def _metric_through(d: np.ndarray, via: list[int], *, rel_tol: float = 1e-12) -> bool:
@@ -416,7 +423,7 @@ def cheapest_hub_set(
     if found is None:
         return None
     t0 = time.perf_counter()
-    parts = split_workers(workers, enumeration_work(data, params) or 0)
+    parts = split_workers(workers, walk_work(found, data.n))
     job = _Job("cheapest", data, d, params, math.inf, _wall_deadline(time_limit_s))
     results = _run_parts(job, parts)
     if results is None:
@@ -466,10 +473,8 @@ def hub_sets_within(
     found = hub_choices(data, params)
     if found is None:
         return None
-    _forced, free, need = found
-    work = math.comb(len(free), need) * data.n * data.n
     job = _Job("within", data, d, params, limit, _wall_deadline(time_limit_s))
-    results = _run_parts(job, split_workers(workers, work))
+    results = _run_parts(job, split_workers(workers, walk_work(found, data.n)))
     if results is None:
         return None
     out = [pair for res in results for pair in res]
@@ -537,8 +542,8 @@ def _walk_part(
 ) -> list[tuple[float, list[int]]]:
     """Part ``part`` of the walk: its sets within the limit, or its cheapest.
 
-    ``shared``: a ``multiprocessing.Value`` holding the cheapest cost any
-    part has found (``"cheapest"`` only). Raises ``TimeoutError`` past the
+    ``shared``: a lock-free ``multiprocessing.RawValue`` holding the
+    cheapest cost any part has found (``"cheapest"`` only). Raises ``TimeoutError`` past the
     deadline.
     """
     found = hub_choices(job.data, job.params)
@@ -574,12 +579,13 @@ def _walk_part(
         # the hub lists, the same however the walk was split.
         out += [
             (float(costs[j]), sorted([*chosen, xs[j]]))
-            for j in np.flatnonzero(costs <= best[0] + TIE_TOL * abs(best[0]))
+            for j in np.flatnonzero(_tied(costs, best[0]))
         ]
     return out
 
 
-def _tied(cost: float, best: float) -> bool:
+def _tied(cost: Any, best: float) -> Any:
+    """Whether ``cost`` (a number or an array) ties with ``best`` to within :data:`TIE_TOL`."""
     return cost <= best + TIE_TOL * abs(best)
 
 

@@ -42,7 +42,7 @@ import numpy as np
 from hubnet.config import HubModelParams
 from hubnet.data import NetworkData
 from hubnet.heuristics import _Pricer, single_allocation_cost
-from hubnet.hubsets import hub_sets_within, single_hub_choices, split_workers
+from hubnet.hubsets import hub_sets_within, single_hub_choices, split_workers, walk_work
 from hubnet.pathlp import branch_on_path, relax_path
 from hubnet.screen import set_bound
 
@@ -124,10 +124,7 @@ def search_work(data: NetworkData, params: HubModelParams) -> int | None:
     capacities and a hub left to choose.
     """
     found = single_hub_choices(data, params)
-    if found is None:
-        return None
-    _forced, free, need = found
-    return math.comb(len(free), need) * data.n * data.n
+    return None if found is None else walk_work(found, data.n)
 
 
 def allocate_hub_set(
@@ -242,7 +239,7 @@ def search_hub_sets(
     # model is the better tool: give up early rather than allocate them all.
     # Measured on one process: a walk split over several ends sooner, and
     # the allocations after it stay on one.
-    parts = split_workers(workers, math.comb(len(choices[1]), choices[2]) * data.n * data.n)
+    parts = split_workers(workers, walk_work(choices, data.n))
     budget = max(MIN_ALLOCATE_S, ALLOCATE_SHARE * parts * (t1 - t0))
     stopped = "too many hub sets" if len(sets) > MAX_KEPT else ""
     pr = _Pricer(data, d, params)
