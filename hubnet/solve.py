@@ -984,7 +984,7 @@ def _narrow_by_flow_relaxation(
         if not solved or bound is None:
             progress("linear relaxation not solved in time: no allocation ruled out")
             return start, None
-        budget = start_budget(data.n, params.allocation, left.time_limit_s)
+        budget = start_budget(data.n, params.allocation, left.time_limit_s, params.hubs)
         start = _lp_guided_start(model, data, d, params, start, (budget, left.threads), progress)
         slack = start[2] - float(bound) + 1e-7 * max(1.0, abs(start[2]))
         # At its upper bound a reduced cost is <= 0 and says nothing.
@@ -1464,19 +1464,32 @@ def _solve_by_hub_sets(
 START_SHARE = 0.25
 
 
-def start_budget(n: int, allocation: str, time_limit_s: float | None) -> float:
+def start_budget(
+    n: int, allocation: str, time_limit_s: float | None, hubs: int | None = None
+) -> float:
     """Wall-clock budget of the starting plan's local search, s.
 
     Single allocation: 60 s (it stops earlier at a local optimum). Multiple
     allocation: the iterated search stops by itself after 20 kicks without
-    gain, so the budget only caps it on large networks: n^2 / 1000 s, at
-    least 5 and at most 60 (40 s at 200 sites). Either way at most a
-    quarter of the run's time limit ``time_limit_s`` (s).
+    gain, so the budget only caps it on large networks. A kick's descent
+    prices about p q n^2 routes per step over about p steps, so the cap
+    grows with the hub count ``hubs`` (p, 4 when free): n^2 p / 4000 s, at
+    least 5 and at most :data:`MAX_START_S` (AP, 200 sites, 15 hubs: 150
+    s; the search's best plan, 92,646.39, came after 27 kicks and about
+    100 s, where 40 s had left 92,806.88). Either way at most a quarter of
+    the run's time limit ``time_limit_s`` (s).
     """
-    budget = 60.0 if allocation != "multiple" else min(60.0, max(5.0, n * n / 1000.0))
+    if allocation != "multiple":
+        budget = 60.0
+    else:
+        budget = min(MAX_START_S, max(5.0, n * n * max(hubs or 4, 4) / 4000.0))
     if time_limit_s is not None:
         budget = min(budget, START_SHARE * time_limit_s)
     return budget
+
+
+#: Most wall time the multiple-allocation starting search may take, s.
+MAX_START_S = 300.0
 
 
 def _start(
@@ -1511,7 +1524,7 @@ def _start(
         progress(f"starting plan given: {len(hubs)} hubs")
         return hubs, assign, cost
     t0 = time.perf_counter()
-    budget = start_budget(data.n, params.allocation, time_limit_s)
+    budget = start_budget(data.n, params.allocation, time_limit_s, params.hubs)
     found = starting_plan(data, d, params, max_seconds=budget)
     if found is None:
         return None
