@@ -406,6 +406,22 @@ def test_benders_from_a_poor_start_reaches_the_enumerated_optimum(seed: int, p: 
         assert (want - stats.best_bound) / want <= 1e-6
 
 
+def test_no_benders_round_starts_without_room_for_it() -> None:
+    # Common practice, no source: work that cannot finish in the time left
+    # is not started. Half the last round's wall time must be left; no
+    # round is ever started past the limit; with no limit, always room.
+    from hubnet.benders import ROUND_SHARE, room_for_round
+
+    assert ROUND_SHARE == 0.5
+    assert room_for_round(None, 500.0)
+    assert room_for_round(4.0, None)
+    assert not room_for_round(0.0, None)
+    assert not room_for_round(-1.0, 1.0)
+    assert not room_for_round(4.0, 52.0)  # AP 200, 15 hubs: 4 s left after a 52 s round
+    assert room_for_round(26.0, 52.0)
+    assert not room_for_round(25.9, 52.0)
+
+
 def test_benders_neighbour_moves_and_cut_values() -> None:
     # Checked by hand / by a plain loop, not by the model: one move from a
     # hub set swaps one open hub for one closed hub (or, with a free hub
