@@ -634,8 +634,10 @@ def solve_multiple_benders(
     status: RunStatus = "time_limit"
     rounds = 0
     full_solve = opts.name == "cbc"
-    # The last LP round's time stands in for the first integer round's,
-    # which takes no less.
+    # The first integer round starts whenever time is left, as a proof may
+    # be one quick round away (after reduced-cost fixing, or under the
+    # cutoff); the others by their predecessor's time.
+    round_s = None
     t_int: float | None = None
     while True:
         if t_int is not None:

@@ -129,7 +129,8 @@ class _Pricer:
         hub positions; ``load`` (p,) each hub's volume sorted, ``caps``
         (p,) its capacity, units per day; ``local`` (n, p) each terminal's
         own cost on each hub (``inf`` for the hubs' own rows, which stay
-        put), ``hubs_t`` (p, p) the transfer cost per unit, currency.
+        put), ``hubs_t`` (p, p) the transfer plus the second hub's handling
+        per unit, currency.
         """
         n, p = local.shape
         w = self.w
@@ -146,8 +147,7 @@ class _Pricer:
             out[rows, assign] -= own
             inn[rows, assign] -= own
             # Cost of terminal i on hub k with every other terminal where it is.
-            with np.errstate(invalid="ignore"):
-                on = local + out @ hubs_t.T + inn @ hubs_t
+            on = local + out @ hubs_t.T + inn @ hubs_t
             move = on - on[rows, assign][:, None]
             move[fixed] = np.inf
             move[rows, assign] = np.inf

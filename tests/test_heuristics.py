@@ -238,17 +238,24 @@ def _reference_single_cost(
 
 
 @SETTINGS
-@given(seed=st.integers(0, 10_000), n=st.integers(5, 8), p=st.integers(2, 3))
+@given(
+    seed=st.integers(0, 10_000),
+    n=st.integers(5, 8),
+    p=st.integers(1, 4),
+    all_flows=st.booleans(),
+)
 def test_capacitated_allocation_is_a_local_optimum_of_moves_and_exchanges(
-    seed: int, n: int, p: int
+    seed: int, n: int, p: int, all_flows: bool
 ) -> None:
     # Tight sort capacities (each hub room for a little more than its share
     # of the volume) often block every single move; exchanging two
     # terminals of different hubs then still lowers the cost. The
     # allocation found must fit the capacities, cost no less than the best
     # allocation by enumeration, and no move or exchange that fits may
-    # lower its cost, both priced from the definition above.
-    data, d = _network(seed, n)
+    # lower its cost, both priced from the definition above. Sites may
+    # send to themselves (as in the AP data): that volume stays on the
+    # site's hub whichever it is.
+    data, d = _network(seed, n, all_flows=all_flows)
     rng = np.random.default_rng(seed + 1)
     hubs = sorted(rng.choice(n, size=p, replace=False).tolist())
     out_vol = data.flow_matrix().sum(axis=1)
@@ -258,21 +265,14 @@ def test_capacitated_allocation_is_a_local_optimum_of_moves_and_exchanges(
     params = dataclasses.replace(_params(p), allocation="single", capacitated=True)
     found = _Pricer(data, d, params).allocate(hubs)
     others = [i for i in range(n) if i not in hubs]
-    feasible = []
-    for choice in itertools.product(hubs, repeat=len(others)):
-        a = np.arange(n)
-        a[others] = choice
-        if all(out_vol[a == k].sum() <= room + 1e-9 for k in hubs):
-            feasible.append(a)
     if found is None:
-        # The greedy fill may miss a fitting allocation; it must not invent one.
+        # The greedy fill may miss an allocation that fits (it then says
+        # so rather than invent one): only when some fit is it required.
         return
     a = np.asarray(found)
     assert all(a[k] == k for k in hubs)
     assert all(out_vol[a == k].sum() <= room + 1e-9 for k in hubs)
     cost = _reference_single_cost(data, d, params, a)
-    best = min(_reference_single_cost(data, d, params, b) for b in feasible)
-    assert cost >= best - 1e-6 * max(1.0, best)
     tol = 1e-7 * max(1.0, cost)
     for i in others:
         for k in hubs:
@@ -301,6 +301,20 @@ def test_capacitated_start_near_the_best_known_plan_on_ap_50_tt() -> None:
     ]
     assert rows, "published_optima.csv has no CSAHLP 50TT row"
     data = ap_network(50, fixed="T", cap="T")
-    found = starting_plan(data, euclid(data), ap_params("single", None, capacitated=True))
+    d = euclid(data)
+    params = ap_params("single", None, capacitated=True)
+    found = starting_plan(data, d, params)
     assert found is not None
-    assert rows[0] - 0.005 <= found[2] <= 1.015 * rows[0]
+    hubs, assign, cost = found
+    assert assign is not None
+    assert rows[0] - 0.005 <= cost <= 1.015 * rows[0]
+    # The plan as returned, priced from the definition (with the AP
+    # convention's 0.001 per unit-distance) and checked against the
+    # capacities.
+    out_vol = data.flow_matrix().sum(axis=1)
+    for k in hubs:
+        cap = data.sites[k].sort_capacity
+        assert cap is not None and out_vol[assign == k].sum() <= cap + 1e-9
+    fixed = sum(data.sites[k].hub_fixed_cost for k in hubs)
+    priced = _reference_single_cost(data, d, params, assign) + fixed
+    assert priced == pytest.approx(cost, rel=1e-9)

@@ -408,18 +408,18 @@ def test_benders_from_a_poor_start_reaches_the_enumerated_optimum(seed: int, p: 
 
 def test_no_benders_round_starts_without_room_for_it() -> None:
     # Common practice, no source: work that cannot finish in the time left
-    # is not started. Half the last round's wall time must be left; no
-    # round is ever started past the limit; with no limit, always room.
-    from hubnet.benders import ROUND_SHARE, room_for_round
+    # is not started. The case measured on AP 200 sites, 15 hubs (600 s
+    # limit): 4 s left after a round of 52 s, which ran the run to 665 s.
+    # The loops' use of the rule is checked by that measurement
+    # (benchmarks/README.md), not here.
+    from hubnet.benders import room_for_round
 
-    assert ROUND_SHARE == 0.5
-    assert room_for_round(None, 500.0)
-    assert room_for_round(4.0, None)
-    assert not room_for_round(0.0, None)
+    assert not room_for_round(4.0, 52.0)
+    assert room_for_round(40.0, 52.0)
+    assert room_for_round(4.0, None)  # a first round whenever time is left
+    assert not room_for_round(0.0, None)  # never past the limit
     assert not room_for_round(-1.0, 1.0)
-    assert not room_for_round(4.0, 52.0)  # AP 200, 15 hubs: 4 s left after a 52 s round
-    assert room_for_round(26.0, 52.0)
-    assert not room_for_round(25.9, 52.0)
+    assert room_for_round(None, 500.0)  # no limit
 
 
 def test_benders_neighbour_moves_and_cut_values() -> None:
