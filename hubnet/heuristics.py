@@ -148,18 +148,18 @@ class _Pricer:
             inn[rows, assign] -= own
             # Cost of terminal i on hub k with every other terminal where it is.
             on = local + out @ hubs_t.T + inn @ hubs_t
-            move = on - on[rows, assign][:, None]
-            move[fixed] = np.inf
-            move[rows, assign] = np.inf
-            move[load[None, :] + vol[:, None] > caps[None, :] + 1e-9] = np.inf
+            a = assign
+            here = on[rows, a]
+            delta = on - here[:, None]  # moving i to hub k, the others staying
             # Exchange i (on a) and j (on b): both moves, plus the pair's
             # own transfers, which each move counted as if the other stayed.
-            a = assign
-            swap = (
-                (on - on[rows, a][:, None])[:, a]
-                + (on - on[rows, a][:, None])[:, a].T
-                + pair_w * (hubs_t[a][:, a] + hubs_t[a][:, a].T)
-            )
+            to_other = delta[:, a]  # [i, j]: i moved to j's hub
+            between = hubs_t[np.ix_(a, a)]
+            swap = to_other + to_other.T + pair_w * (between + between.T)
+            move = delta
+            move[fixed] = np.inf
+            move[rows, a] = np.inf
+            move[load[None, :] + vol[:, None] > caps[None, :] + 1e-9] = np.inf
             ok = (a[:, None] != a[None, :]) & ~fixed[:, None] & ~fixed[None, :]
             room_a = load[a][:, None] - vol[:, None] + vol[None, :] <= caps[a][:, None] + 1e-9
             ok &= room_a & room_a.T
@@ -167,7 +167,7 @@ class _Pricer:
             i_m = int(np.argmin(move))
             i_s = int(np.argmin(swap))
             best_move, best_swap = move.flat[i_m], swap.flat[i_s]
-            if min(best_move, best_swap) >= -1e-9 * max(1.0, float(np.abs(on[rows, a]).sum())):
+            if min(best_move, best_swap) >= -1e-9 * max(1.0, float(np.abs(here).sum())):
                 break
             if best_move <= best_swap:
                 i, k = divmod(i_m, p)

@@ -163,15 +163,47 @@ def single_allocation_plans(
             a = np.empty(n, dtype=int)
             a[list(hubs)] = hubs
             a[others] = choice
-            cost = sum(
-                w[i, j] * (c[i, a[i]] + handling[a[i]] + hub_t[a[i], a[j]] + dist[a[j], j])
-                for i in range(n)
-                for j in range(n)
-                if w[i, j] > 0
-            )
+            cost = _plan_cost(c, hub_t, dist, handling, w, a)
             costs.append(cost + fixed[list(hubs)].sum())
             plans.append(a)
     return np.array(costs), np.array(plans)
+
+
+def _plan_cost(c, hub_t, dist, handling, w, a) -> float:  # type: ignore[no-untyped-def]
+    """Routing and handling of allocation ``a`` (``a[i]``: hub of site i), pair by pair."""
+    n = len(a)
+    return float(
+        sum(
+            w[i, j] * (c[i, a[i]] + handling[a[i]] + hub_t[a[i], a[j]] + dist[a[j], j])
+            for i in range(n)
+            for j in range(n)
+            if w[i, j] > 0
+        )
+    )
+
+
+def single_plan_cost(
+    d: np.ndarray,
+    w: np.ndarray,
+    a: np.ndarray,
+    *,
+    rate: float = 1.0,
+    chi: float = 1.0,
+    alpha: float = 1.0,
+    delta: float = 1.0,
+    handling: np.ndarray | None = None,
+) -> float:
+    """One single allocation's routing and handling cost (no fixed costs).
+
+    Each unit from i to j pays collection to ``a[i]``, handling there,
+    transfer to ``a[j]`` with handling there when the hubs differ, and
+    distribution to j; as in :func:`single_allocation_plans`.
+    """
+    handling = np.zeros(len(d)) if handling is None else handling
+    c, t, dist = _unit_costs(d, rate, chi, alpha, delta)
+    hub_t = t + handling[None, :]
+    np.fill_diagonal(hub_t, 0.0)
+    return _plan_cost(c, hub_t, dist, handling, w, a)
 
 
 def cost_terms(data, params) -> dict:  # type: ignore[no-untyped-def,type-arg]

@@ -16,7 +16,7 @@ import re
 import numpy as np
 import pytest
 from benchdata import ap_network, ap_params, euclid, published_rows, reference_dir
-from bruteforce import multiple_allocation_cost
+from bruteforce import multiple_allocation_cost, single_plan_cost
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
@@ -217,24 +217,20 @@ def test_capacitated_start_fits_the_sort_capacities(n: int, setting: str) -> Non
 def _reference_single_cost(
     data: NetworkData, d: np.ndarray, params: HubModelParams, a: np.ndarray
 ) -> float:
-    """A single allocation's cost from the problem definition (routing and handling).
+    """A single allocation's routing and handling cost, from the definition.
 
-    Each unit from i to j pays collection i -> a[i], handling at a[i],
-    transfer a[i] -> a[j] with handling at a[j] when the hubs differ, and
-    distribution a[j] -> j; written here without hubnet's pricing code.
+    tests/bruteforce.py prices it pair by pair, without hubnet's pricing code.
     """
-    w = data.flow_matrix()
-    handling = np.array([s.handling_cost for s in data.sites])
-    rate = params.cost_per_unit_km
-    total = 0.0
-    for i, j in zip(*np.nonzero(w), strict=True):
-        k, m = a[i], a[j]
-        unit = rate * params.collection_factor * d[i, k] + handling[k]
-        if k != m:
-            unit += rate * params.transfer_factor * d[k, m] + handling[m]
-        unit += rate * params.distribution_factor * d[m, j]
-        total += w[i, j] * unit
-    return total
+    return single_plan_cost(
+        d,
+        data.flow_matrix(),
+        a,
+        rate=params.cost_per_unit_km,
+        chi=params.collection_factor,
+        alpha=params.transfer_factor,
+        delta=params.distribution_factor,
+        handling=np.array([s.handling_cost for s in data.sites]),
+    )
 
 
 @SETTINGS
