@@ -1160,7 +1160,11 @@ def _lp_guided_start(
                 seed.append(k)
     else:
         seed = sorted({k for k in ranked if value[k] >= 0.5} | set(forced)) or ranked[:1]
-    found = starting_plan(data, d, params, max_seconds=budget_s, initial_hubs=seed)
+    # From the start's own hubs the search would only retrace its steps.
+    same = sorted(seed) == sorted(start[0])
+    found = (
+        None if same else starting_plan(data, d, params, max_seconds=budget_s, initial_hubs=seed)
+    )
     if found is not None and found[2] < start[2]:
         progress(f"plan from the relaxation's hubs: cost {found[2]:,.2f} (start {start[2]:,.2f})")
         start = found

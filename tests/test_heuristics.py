@@ -11,7 +11,6 @@ from __future__ import annotations
 
 import dataclasses
 import itertools
-import re
 
 import numpy as np
 import pytest
@@ -184,36 +183,6 @@ def test_starting_plan_reaches_published_ap_values(n: int, p: int) -> None:
     assert found[2] <= row.objective + 0.5 * 10 ** (-row.decimals)
 
 
-@pytest.mark.parametrize(("n", "setting"), [(20, "LT"), (20, "TT"), (25, "LT"), (25, "TT")])
-def test_capacitated_start_fits_the_sort_capacities(n: int, setting: str) -> None:
-    # The AP capacitated instances (CSAHLP; optima from published_optima.csv,
-    # Ernst and Krishnamoorthy 1999) with tight capacities: the greedy
-    # phase's hub set used to leave no room for every site (it picked a site
-    # sending more than it can sort), and no start was found. The start must
-    # exist, keep every hub's inbound volume (counted here from the flow
-    # matrix alone) within its capacity, and cost no less than the optimum.
-    rows = {
-        re.search(r"instance (\d+[LT][LT])", r.setting).group(1): r.objective  # type: ignore[union-attr]
-        for r in published_rows()
-        if r.problem == "CSAHLP"
-    }
-    data = ap_network(n, fixed=setting[0], cap=setting[1])
-    params = ap_params("single", None, capacitated=True)
-    found = starting_plan(data, euclid(data), params)
-    assert found is not None
-    hubs, assign, cost = found
-    assert assign is not None
-    out_vol = data.flow_matrix().sum(axis=1)
-    load = np.bincount(assign, weights=out_vol, minlength=n)
-    assert set(assign.tolist()) == set(hubs) and all(assign[k] == k for k in hubs)
-    for k in hubs:
-        cap = data.sites[k].sort_capacity
-        assert cap is not None and load[k] <= cap + 1e-9
-    optimum = rows[f"{n}{setting}"]
-    assert cost >= optimum - 0.005
-    assert cost <= 1.05 * optimum  # a start worth handing to the solver
-
-
 def _reference_single_cost(
     data: NetworkData, d: np.ndarray, params: HubModelParams, a: np.ndarray
 ) -> float:
@@ -284,33 +253,227 @@ def test_capacitated_allocation_is_a_local_optimum_of_moves_and_exchanges(
                     assert _reference_single_cost(data, d, params, b) >= cost - tol
 
 
-def test_capacitated_start_near_the_best_known_plan_on_ap_50_tt() -> None:
-    # AP, 50 sites, tight fixed costs and capacities (CSAHLP 50TT): the
-    # best known plan costs 417,440.99 (published_optima.csv, best known
-    # only: Ernst and Krishnamoorthy 1999). With single moves only, the
-    # allocation rule left the local search at 429,757.62 (2.9 % above);
-    # with exchanges it reaches 421,702.81 (1.0 %).
-    rows = [
-        r.objective
-        for r in published_rows()
-        if r.problem == "CSAHLP" and r.n == 50 and "50TT" in r.setting
-    ]
-    assert rows, "published_optima.csv has no CSAHLP 50TT row"
-    data = ap_network(50, fixed="T", cap="T")
+def _fitting_neighbours(a: np.ndarray, hubs: list[int]) -> list[np.ndarray]:
+    """Every allocation one move or one exchange of two terminals away from ``a``."""
+    n = len(a)
+    others = [i for i in range(n) if i not in hubs]
+    found = []
+    for i in others:
+        for k in hubs:
+            if k != a[i]:
+                b = a.copy()
+                b[i] = k
+                found.append(b)
+        for j in others:
+            if j > i and a[j] != a[i]:
+                b = a.copy()
+                b[i], b[j] = a[j], a[i]
+                found.append(b)
+    return found
+
+
+def _tight_network(
+    seed: int, n: int, p: int, all_flows: bool, slack: float
+) -> tuple[NetworkData, np.ndarray, HubModelParams, list[int], np.ndarray, float]:
+    """A small network whose ``p`` random hubs each sort ``slack`` times their share."""
+    data, d = _network(seed, n, all_flows=all_flows)
+    rng = np.random.default_rng(seed + 1)
+    hubs = sorted(rng.choice(n, size=p, replace=False).tolist())
+    out_vol = data.flow_matrix().sum(axis=1)
+    room = float(slack * out_vol.sum() / p)
+    sites = tuple(dataclasses.replace(s, sort_capacity=room) for s in data.sites)
+    data = dataclasses.replace(data, sites=sites)
+    params = dataclasses.replace(_params(p), allocation="single", capacitated=True)
+    return data, d, params, hubs, out_vol, room
+
+
+def _random_allocation(
+    seed: int, h: np.ndarray, out_vol: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """Hub positions of a random allocation to hubs ``h`` (each on itself) and the loads."""
+    pos = np.random.default_rng(seed).integers(len(h), size=len(out_vol))
+    pos[h] = np.arange(len(h))
+    return pos, np.bincount(pos, weights=out_vol, minlength=len(h))
+
+
+@SETTINGS
+@given(
+    seed=st.integers(0, 10_000),
+    n=st.integers(5, 8),
+    p=st.integers(2, 4),
+    all_flows=st.booleans(),
+    slack=st.sampled_from([1.05, 1.15]),
+)
+def test_iterated_allocation_reaches_the_best_allocation_by_enumeration(
+    seed: int, n: int, p: int, all_flows: bool, slack: float
+) -> None:
+    # Under tight sort capacities moves and exchanges stop short; the
+    # iterated search (kicks, a descent with overflow at a price, repair)
+    # must return an allocation that fits, keeps each hub on itself, costs
+    # no more than where it started, and on these small networks is the
+    # cheapest allocation to the same hubs found by trying them all. Costs
+    # from the definition (tests/bruteforce.py).
+    data, d, params, hubs, out_vol, room = _tight_network(seed, n, p, all_flows, slack)
+    pricer = _Pricer(data, d, params)
+    start = pricer.allocate(hubs)
+    if start is None:
+        return  # the quick rule found no allocation that fits: nothing to refine
+    a = pricer.refine(hubs, start)
+    assert all(a[k] == k for k in hubs)
+    assert all(out_vol[a == k].sum() <= room + 1e-9 for k in hubs)
+    cost = _reference_single_cost(data, d, params, a)
+    assert cost <= _reference_single_cost(data, d, params, np.asarray(start)) + 1e-7 * cost
+    others = [i for i in range(n) if i not in hubs]
+    best = np.inf
+    for choice in itertools.product(hubs, repeat=len(others)):
+        b = np.asarray(start).copy()
+        b[others] = choice
+        if all(out_vol[b == k].sum() <= room + 1e-9 for k in hubs):
+            best = min(best, _reference_single_cost(data, d, params, b))
+    assert cost == pytest.approx(best, rel=1e-9)
+
+
+@settings(SETTINGS, max_examples=80)
+@given(
+    seed=st.integers(0, 10_000),
+    n=st.integers(5, 9),
+    p=st.integers(2, 4),
+    price=st.sampled_from([0.5, 5.0, 50.0]),
+    slack=st.sampled_from([1.0, 1.05]),
+)
+def test_descent_with_priced_overflow_ends_where_no_step_pays(
+    seed: int, n: int, p: int, price: float, slack: float
+) -> None:
+    # With an overflow price every move and exchange is allowed and each
+    # unit of volume over a hub's capacity costs ``price``. From a random
+    # allocation (over capacity or not), the descent must end where no
+    # move or exchange lowers cost + price x overflow, both priced here
+    # from the definition, and report each hub's load as it is.
+    data, d, params, hubs, out_vol, room = _tight_network(seed, n, p, True, slack)
+    pricer = _Pricer(data, d, params)
+    h = np.asarray(hubs)
+    local, hubs_t, caps = pricer._on_hubs(h)
+    pos, load = _random_allocation(seed, h, out_vol)
+    pricer._exchange(pos, load, caps, local, hubs_t, overflow_price=price)
+    a = h[pos]
+    assert np.allclose(load, [out_vol[a == k].sum() for k in hubs])
+    assert all(a[k] == k for k in hubs)
+
+    def penalised(b: np.ndarray) -> float:
+        over = sum(max(out_vol[b == k].sum() - room, 0.0) for k in hubs)
+        return _reference_single_cost(data, d, params, b) + price * over
+
+    value = penalised(a)
+    for b in _fitting_neighbours(a, hubs):
+        assert penalised(b) >= value - 1e-7 * max(1.0, value)
+
+
+#: The AP capacitated instances with published values (published_optima.csv:
+#: CSAHLP, Ernst and Krishnamoorthy 1999; 50 TT is a best known value).
+CSAHLP_CASES = [
+    pytest.param(n, setting, marks=[pytest.mark.slow] if n >= 40 else [])
+    for n in (10, 20, 25, 40, 50)
+    for setting in ("LL", "LT", "TL", "TT")
+]
+
+
+@pytest.mark.parametrize(("n", "setting"), CSAHLP_CASES)
+def test_capacitated_start_reaches_the_published_value(n: int, setting: str) -> None:
+    # The starting search alone (no solver) must reach the published
+    # optimum (or best known value) within half a unit of its last printed
+    # digit. Before the iterated allocation it ended up to 9.6 % above
+    # (40 LT: 298,446.26 against 272,218.32); at 50 TT the best known
+    # plan's hubs were allocated 1.7 % too dear and never chosen. The plan
+    # must fit the sort capacities (inbound volume counted here from the
+    # flow matrix) and cost what the search says, priced from the
+    # definition.
+    reference_dir()  # skips with the reason when the published data is absent
+    row = next(
+        (
+            r
+            for r in published_rows()
+            if r.problem == "CSAHLP" and r.n == n and f"instance {n}{setting}" in r.setting
+        ),
+        None,
+    )
+    assert row is not None, f"published_optima.csv has no CSAHLP {n}{setting} row"
+    data = ap_network(n, fixed=setting[0], cap=setting[1])
     d = euclid(data)
-    params = ap_params("single", None, capacitated=True)
-    found = starting_plan(data, d, params)
+    found = starting_plan(data, d, ap_params("single", None, capacitated=True))
     assert found is not None
     hubs, assign, cost = found
     assert assign is not None
-    assert rows[0] - 0.005 <= cost <= 1.015 * rows[0]
-    # The plan as returned, priced from the definition (with the AP
-    # convention's 0.001 per unit-distance) and checked against the
-    # capacities.
+    assert abs(cost - row.objective) <= 0.5 * 10 ** (-row.decimals)
     out_vol = data.flow_matrix().sum(axis=1)
+    assert set(assign.tolist()) == set(hubs) and all(assign[k] == k for k in hubs)
     for k in hubs:
         cap = data.sites[k].sort_capacity
         assert cap is not None and out_vol[assign == k].sum() <= cap + 1e-9
     fixed = sum(data.sites[k].hub_fixed_cost for k in hubs)
+    params = ap_params("single", None, capacitated=True)
     priced = _reference_single_cost(data, d, params, assign) + fixed
     assert priced == pytest.approx(cost, rel=1e-9)
+
+
+@SETTINGS
+@given(
+    seed=st.integers(0, 10_000),
+    n=st.integers(5, 8),
+    p=st.integers(2, 4),
+    price=st.sampled_from([None, 0.5, 50.0]),
+)
+def test_step_costs_are_the_cost_changes_of_each_move_and_exchange(
+    seed: int, n: int, p: int, price: float | None
+) -> None:
+    # From a random allocation (over capacity or not), each move's and each
+    # exchange's cost change as the search computes it must equal the
+    # difference of the two allocations' costs priced from the definition,
+    # plus price x the change in volume over capacity when overflow is
+    # priced; without a price, steps that end over a capacity are barred.
+    data, d, params, hubs, out_vol, room = _tight_network(seed, n, p, True, 1.05)
+    pricer = _Pricer(data, d, params)
+    h = np.asarray(hubs)
+    local, hubs_t, caps = pricer._on_hubs(h)
+    pos, load = _random_allocation(seed, h, out_vol)
+    move, swap, _ = pricer._step_costs(pos, load, caps, local, hubs_t, price)
+    a = h[pos]
+
+    def over(b: np.ndarray) -> float:
+        return sum(max(out_vol[b == k].sum() - room, 0.0) for k in hubs)
+
+    base = _reference_single_cost(data, d, params, a)
+    checked = 0
+    for i in range(n):
+        for j in range(n):
+            if i in hubs or j in hubs or i == j or pos[i] == pos[j]:
+                assert not np.isfinite(swap[i, j])
+                continue
+            b = a.copy()
+            b[i], b[j] = a[j], a[i]
+            change = _reference_single_cost(data, d, params, b) - base
+            if price is not None:
+                assert swap[i, j] == pytest.approx(change + price * (over(b) - over(a)), abs=1e-6)
+                checked += 1
+            else:
+                fits = all(out_vol[b == k].sum() <= room + 1e-9 for k in (a[i], a[j]))
+                assert np.isfinite(swap[i, j]) == fits
+                if fits:
+                    assert swap[i, j] == pytest.approx(change, abs=1e-6)
+                    checked += 1
+        for k_pos in range(p):
+            if i in hubs or k_pos == pos[i]:
+                assert not np.isfinite(move[i, k_pos])
+                continue
+            b = a.copy()
+            b[i] = h[k_pos]
+            change = _reference_single_cost(data, d, params, b) - base
+            if price is not None:
+                priced = change + price * (over(b) - over(a))
+                assert move[i, k_pos] == pytest.approx(priced, abs=1e-6)
+                checked += 1
+            else:
+                assert np.isfinite(move[i, k_pos]) == (out_vol[b == h[k_pos]].sum() <= room + 1e-9)
+                if np.isfinite(move[i, k_pos]):
+                    assert move[i, k_pos] == pytest.approx(change, abs=1e-6)
+                    checked += 1
+    assert price is None or checked > 0
