@@ -33,6 +33,7 @@ import os
 import time
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass
+from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -510,10 +511,49 @@ _CAN_FORK = "fork" in multiprocessing.get_all_start_methods()
 
 
 def usable_cores() -> int:
-    """Cores this process may run on."""
+    """Cores this process may run on: its CPU affinity, cut to its cgroup's CPU quota.
+
+    A container limited to 2 CPUs on a 64-core host sees all 64 in its
+    affinity; walks split over 64 processes would then share 2 CPUs' time.
+    """
     if hasattr(os, "sched_getaffinity"):
-        return len(os.sched_getaffinity(0))
-    return os.cpu_count() or 1
+        cores = len(os.sched_getaffinity(0))
+    else:
+        cores = os.cpu_count() or 1
+    quota = cpu_quota()
+    return max(1, cores if quota is None else min(cores, quota))
+
+
+#: Where the cgroup file system is mounted (Linux).
+CGROUP_ROOT = Path("/sys/fs/cgroup")
+
+
+def cpu_quota(root: Path = CGROUP_ROOT) -> int | None:
+    """Whole CPUs the cgroup's CPU quota allows (rounded up), ``None`` when unlimited or unknown.
+
+    cgroup v2: ``cpu.max`` holds ``$MAX $PERIOD`` (a newer kernel adds
+    ``$BURST``), ``max`` for no limit; cgroup v1: ``cpu/cpu.cfs_quota_us``
+    (-1 for no limit) over ``cpu/cpu.cfs_period_us``; both in
+    microseconds (Linux kernel documentation: admin-guide/cgroup-v2.rst,
+    scheduler/sched-bwc.rst). Inside a container ``root`` is the
+    container's own group.
+    """
+    try:
+        v2 = root / "cpu.max"
+        if v2.is_file():
+            fields = v2.read_text().split()
+            if len(fields) < 2 or fields[0] == "max":
+                return None
+            quota, period = float(fields[0]), float(fields[1])
+        else:
+            v1 = root / "cpu"
+            quota = float((v1 / "cpu.cfs_quota_us").read_text().strip())
+            period = float((v1 / "cpu.cfs_period_us").read_text().strip())
+    except (OSError, ValueError):
+        return None
+    if quota <= 0 or period <= 0:
+        return None
+    return max(1, math.ceil(quota / period - 1e-9))
 
 
 @dataclass(frozen=True)

@@ -10,6 +10,8 @@ from __future__ import annotations
 
 import dataclasses
 import itertools
+import os
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -449,3 +451,40 @@ def test_a_failing_part_is_an_error_not_a_timeout(monkeypatch: pytest.MonkeyPatc
     data = ap_network(10)
     with pytest.raises(RuntimeError, match="broken part"):
         cheapest_hub_set(data, euclid(data), ap_params("multiple", 3), workers=2)
+
+
+@pytest.mark.parametrize(
+    ("files", "expected"),
+    [
+        # cgroup v2 cpu.max, "$MAX $PERIOD" in microseconds, "max" for no
+        # limit; newer kernels add "$BURST" (Linux kernel documentation,
+        # admin-guide/cgroup-v2.rst).
+        ({"cpu.max": "200000 100000\n"}, 2),
+        ({"cpu.max": "150000 100000\n"}, 2),  # 1.5 CPUs' time: two processes
+        ({"cpu.max": "50000 100000 0\n"}, 1),
+        ({"cpu.max": "max 100000\n"}, None),
+        ({"cpu.max": "garbage\n"}, None),
+        # cgroup v1: cpu.cfs_quota_us over cpu.cfs_period_us, -1 for no
+        # limit (scheduler/sched-bwc.rst).
+        ({"cpu/cpu.cfs_quota_us": "400000\n", "cpu/cpu.cfs_period_us": "100000\n"}, 4),
+        ({"cpu/cpu.cfs_quota_us": "-1\n", "cpu/cpu.cfs_period_us": "100000\n"}, None),
+        ({}, None),  # no cgroup files (another system): no quota known
+    ],
+)
+def test_cpu_quota_read_from_the_cgroup_files(
+    tmp_path: Path, files: dict[str, str], expected: int | None
+) -> None:
+    for name, text in files.items():
+        (tmp_path / name).parent.mkdir(parents=True, exist_ok=True)
+        (tmp_path / name).write_text(text)
+    assert hubsets.cpu_quota(tmp_path) == expected
+
+
+def test_usable_cores_keep_to_the_cpu_quota(monkeypatch: pytest.MonkeyPatch) -> None:
+    # With a quota of one CPU the walks get one process, whatever the
+    # affinity says; without one, the affinity (or the CPU count) stands.
+    monkeypatch.setattr(hubsets, "cpu_quota", lambda root=None: 1)
+    assert hubsets.usable_cores() == 1
+    monkeypatch.setattr(hubsets, "cpu_quota", lambda root=None: None)
+    affinity = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else os.cpu_count()
+    assert hubsets.usable_cores() == affinity
