@@ -143,8 +143,9 @@ def cases(
     max_n: int | None = None,
     min_n: int | None = None,
     allocation: str | None = None,
+    hubs: list[int] | None = None,
 ) -> list[Case]:
-    """Every instance selected by ``--only``, ``--max-n``, ``--min-n`` and ``--allocation``."""
+    """Every instance the command-line filters (``--only``, ``--max-n`` ... ``--hubs``) select."""
     out: list[Case] = []
     if only in (None, "cab"):
         for n in CAB_N:
@@ -167,6 +168,7 @@ def cases(
         if (max_n is None or c.n <= max_n)
         and (min_n is None or c.n >= min_n)
         and (allocation is None or c.allocation == allocation)
+        and (hubs is None or c.p in hubs)
     ]
 
 
@@ -607,6 +609,13 @@ def parse_args(argv: list[str] | None = None) -> argparse.Namespace:
     ap.add_argument("--min-n", type=int, default=None, help="skip instances with fewer nodes")
     ap.add_argument("--allocation", choices=ALLOCATIONS, help="run one allocation rule only")
     ap.add_argument(
+        "--hubs",
+        type=int,
+        nargs="+",
+        default=None,
+        help="run these hub counts only (the capacitated instances, with a free count, drop out)",
+    )
+    ap.add_argument(
         "--ma-baseline",
         choices=("campbell", "tight"),
         default="campbell",
@@ -659,7 +668,7 @@ def main(argv: list[str] | None = None) -> int:
     if not (benchdata.BENCH / "published_optima.csv").is_file():
         print(f"benchmark data not found at {benchdata.BENCH}", file=sys.stderr)
         return 2
-    selected = cases(args.only, args.max_n, args.min_n, args.allocation)
+    selected = cases(args.only, args.max_n, args.min_n, args.allocation, args.hubs)
     published = published_table()
     print(
         f"# {len(selected)} instances; solver {args.solver} (baseline "

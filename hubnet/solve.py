@@ -697,8 +697,8 @@ def _solve_by_enumeration(
     if work is None or work > ENUMERATION_MAX_WORK:
         return None
     limit = opts.time_limit_s
-    workers = split_workers(walk_workers(opts), work)
-    if limit is not None and work / (ENUMERATION_WORK_PER_S * workers) > 0.5 * limit:
+    workers, fits = _walk_plan(opts, work, ENUMERATION_WORK_PER_S)
+    if not fits:
         # Likely not to finish: the model, with its start and bound, gets
         # the time instead of an enumeration cut short.
         return None
@@ -1387,14 +1387,23 @@ def _set_search_applies(
     work = search_work(data, params)
     if work is None or work > SET_SEARCH_MAX_WORK:
         return False
-    limit = opts.time_limit_s
-    workers = split_workers(walk_workers(opts), work)
-    return limit is None or work / (SET_SEARCH_WORK_PER_S * workers) <= 0.5 * limit
+    return _walk_plan(opts, work, SET_SEARCH_WORK_PER_S)[1]
 
 
 def walk_workers(opts: SolverParams) -> int:
     """Processes the hub-set walks may use: the run's threads, else every usable core."""
     return opts.threads if opts.threads else usable_cores()
+
+
+def _walk_plan(opts: SolverParams, work: int, work_per_s: float) -> tuple[int, bool]:
+    """Processes a hub-set walk of ``work`` gets, and whether it likely fits half the limit.
+
+    ``work`` is in (hub sets) x (OD pairs) and ``work_per_s`` what one
+    process gets through per second; a run without a time limit always fits.
+    """
+    workers = split_workers(walk_workers(opts), work)
+    limit = opts.time_limit_s
+    return workers, limit is None or work / (work_per_s * workers) <= 0.5 * limit
 
 
 def _solve_by_hub_sets(
@@ -1412,7 +1421,7 @@ def _solve_by_hub_sets(
     (the flow model follows); and the best plan found, as the start for
     what follows.
     """
-    workers = split_workers(walk_workers(left), search_work(data, params) or 0)
+    workers = _walk_plan(left, search_work(data, params) or 0, SET_SEARCH_WORK_PER_S)[0]
     progress(
         f"pricing every set of {params.hubs} hubs under multiple allocation, "
         f"a lower bound on single allocation (start {start[2]:,.2f})"
