@@ -40,8 +40,10 @@ WALK_SHARE = 0.002
 #: the descent cross full hubs, high ones pull it back within capacity.
 OVERFLOW_PRICES = (0.2, 0.5, 1.0, 2.0, 5.0)
 
-#: Overflow price (same unit) that brings an allocation back within the
-#: sort capacities.
+#: Overflow price that brings an allocation back within the sort
+#: capacities, as a multiple of an average cost per unit of volume (the
+#: plan's in :meth:`_Pricer.refine`, the sites' own legs to their cheapest
+#: hub in :meth:`_Pricer.allocate`).
 REPAIR_PRICE = 1000.0
 
 #: A hub set whose quick allocation costs up to this share more than the
@@ -55,8 +57,14 @@ FINAL_KICKS = 1000
 FINAL_PATIENCE_PER_SITE = 10
 
 #: Closed candidates the two-for-one moves of the starting search open
-#: hubs from (:func:`_two_for_one`).
+#: hubs from (:func:`_two_for_one`), and the most sets those moves make.
 SHORTLIST = 20
+TWO_FOR_ONE_SETS = 1_000
+
+
+def _per_unit(cost: float, volume: float) -> float:
+    """``cost`` per unit of ``volume`` (currency per unit), 1.0 when either is not positive."""
+    return cost / volume if cost > 0 and volume > 0 else 1.0
 
 
 class _Pricer:
@@ -78,9 +86,13 @@ class _Pricer:
         # Transfer plus handling at the second hub (none when k == m).
         self.t2 = self.t + self.handling[None, :]
         np.fill_diagonal(self.t2, 0.0)
-        # Average collection, handling and distribution cost per unit of
-        # volume on each site's nearest hub: the scale of overflow prices.
-        self.unit = float(self.local.min(axis=1).sum()) / max(float(self.out_vol.sum()), 1e-12)
+        # Collection, handling and distribution per unit of volume, each
+        # site on its cheapest other site as hub: the scale of the repair's
+        # overflow price (its own row would count the fixed cost and no
+        # distance, and is 0 without fixed and handling costs).
+        n = len(self.w)
+        other = np.where(np.eye(n, dtype=bool), np.inf, self.local).min(axis=1)
+        self.unit = _per_unit(float(other[np.isfinite(other)].sum()), float(self.out_vol.sum()))
 
     def multiple(self, hubs: list[int]) -> float:
         cost, _, _ = best_hub_pairs(self.d, self.params, hubs, self.handling)
@@ -203,8 +215,9 @@ class _Pricer:
         overflow at :data:`REPAIR_PRICE`, and ends with the moves and
         exchanges that fit. The search walks on from a slightly dearer
         allocation (:data:`WALK_SHARE`). Seeded by ``seed``: the same hubs
-        and start give the same result. ``assign`` is each site's hub
-        (matrix index) and fits the capacities; returns the cheapest
+        and start give the same result. ``hubs`` are matrix indices in
+        ascending order; ``assign`` is each site's hub (matrix index) and
+        fits the capacities; returns the cheapest
         allocation found, same form. Stops early at ``deadline`` (a
         ``time.perf_counter()`` value, s) or after ``patience`` kicks in a
         row without a cheaper allocation.
@@ -215,19 +228,20 @@ class _Pricer:
         best = np.searchsorted(h, assign)
         best_cost = self.single_cost(h, best)
         here, here_cost = best, best_cost
-        unit = best_cost / max(float(vol.sum()), 1e-12)
+        unit = _per_unit(best_cost, float(vol.sum()))
         free = np.setdiff1d(np.arange(len(vol)), h)
         if len(free) < 2 or len(h) < 2:
             return np.asarray(assign)
         load = np.bincount(best, weights=vol, minlength=len(h))
-        if not (load + vol[free].min() > caps + 1e-9).any():
+        if not (load + vol[free].max() > caps + 1e-9).any():
             # Every hub has room for any terminal: the capacities block
             # no move, and the descent's allocation stands as without them.
             return np.asarray(assign)
         rng = np.random.default_rng(seed)
-        last_gain = 0
+        last_gain = -1  # the kick of the last gain
+        idle = kicks if patience is None else patience
         for kick in range(kicks):
-            if time.perf_counter() > deadline or kick - last_gain > (patience or kicks):
+            if time.perf_counter() > deadline or kick - last_gain > idle:
                 break
             cur = here.copy()
             size = min(len(free), int(rng.integers(KICK_SITES[0], KICK_SITES[1] + 1)))
@@ -246,7 +260,7 @@ class _Pricer:
                 best, best_cost, last_gain = cur, cost, kick
             if cost <= (1 + WALK_SHARE) * here_cost:
                 here, here_cost = cur, cost
-            elif here_cost > (1 + 3 * WALK_SHARE) * best_cost:
+            if here_cost > (1 + 3 * WALK_SHARE) * best_cost:
                 here, here_cost = best, best_cost
         return np.asarray(h[best])
 
@@ -744,14 +758,26 @@ def starting_plan(
         if not hubs:
             return np.inf, None
         h = sorted(hubs)
-        assign = pricer.allocate(h)
+        key = tuple(h)
+        if key not in quick:
+            got = pricer.allocate(h)
+            priced = (
+                np.inf
+                if got is None
+                else pricer.single_cost(np.asarray(h), np.searchsorted(h, got))
+            )
+            quick[key] = (priced, got)
+        cost, assign = quick[key]
         if assign is None:
             return np.inf, None
-        cost = pricer.single_cost(np.asarray(h), np.searchsorted(h, assign))
         if params.capacitated and cost <= (1 + REFINE_MARGIN) * incumbent:
             assign = pricer.refine(h, assign, patience=REFINE_PATIENCE)
             cost = pricer.single_cost(np.asarray(h), np.searchsorted(h, assign))
         return cost, assign
+
+    # The quick allocation of the sets priced this round, by hub set: the
+    # capacitated search ranks by it, then refines the closest.
+    quick: dict[tuple[int, ...], tuple[float, np.ndarray | None]] = {}
 
     # Cheap proxy for the greedy phase: multiple-allocation pricing.
     def proxy(hubs: list[int]) -> float:
@@ -800,6 +826,7 @@ def starting_plan(
     for _ in range(max_rounds):
         if time.perf_counter() > t_end:
             break
+        quick.clear()
         moves = _neighbours(hubs, cand, forced, target)
         if np.isfinite(cost):
             moves = [m for m in moves if fits(m)]
@@ -809,14 +836,14 @@ def starting_plan(
                 # capacities (AP, 50 sites, TT: the best known hubs were 60th
                 # of 234 swaps). Rank by the quick allocation, and go on only
                 # with the sets close enough to be worth the iterated one.
-                quick = []
+                close = []
                 for move in moves:
                     if time.perf_counter() > t_end:
                         break
                     c_quick = price(move)[0]
                     if c_quick <= (1 + REFINE_MARGIN) * cost:
-                        quick.append((c_quick, move))
-                moves = [move for _, move in sorted(quick, key=lambda q: q[0])]
+                        close.append((c_quick, move))
+                moves = [move for _, move in sorted(close, key=lambda q: q[0])]
             else:
                 # Rank swaps with the cheap proxy; price only the most promising
                 # exactly (all of them while no plan fits the sort capacities).
@@ -826,8 +853,13 @@ def starting_plan(
             # Under tight sort capacities the next better plan may need two
             # changes at once (AP, 50 sites, TT: from hubs 6 25 26 to the
             # best known 6 26 28 48, through dearer plans either way).
-            pairs = [m for m in _two_for_one(hubs, cand, forced, target, proxy) if fits(m)]
-            found = first_gain(sorted(pairs, key=proxy)[:40])
+            ranked = []
+            for move in _two_for_one(hubs, cand, forced, target, proxy):
+                if time.perf_counter() > t_end:
+                    break
+                if fits(move):
+                    ranked.append((proxy(move), move))
+            found = first_gain([move for _, move in sorted(ranked, key=lambda r: r[0])[:40]])
         if found is None:
             break
         hubs, cost, assign = found
@@ -867,14 +899,21 @@ def _two_for_one(
 ) -> list[list[int]]:
     """Hub sets with one hub (two, with a fixed count ``target``) closed and two opened.
 
-    The two opened come from the :data:`SHORTLIST` closed candidates that
-    the ``proxy`` cost likes best when added alone, so that the sets stay
-    few (the shortlist's pairs times the hubs).
+    The two opened come from the closed candidates that the ``proxy`` cost
+    likes best when added alone: :data:`SHORTLIST` of them, fewer when
+    the hubs closed are many ways, so that the sets stay at most
+    :data:`TWO_FOR_ONE_SETS` (the shortlist's pairs times the hubs, or
+    times the pairs of hubs with a fixed count).
     """
-    closed = [k for k in cand if k not in hubs]
-    short = sorted(closed, key=lambda k: proxy(hubs + [k]))[:SHORTLIST]
     movable = [k for k in hubs if k not in forced]
     outs = [[k] for k in movable] if target is None else [list(c) for c in combinations(movable, 2)]
+    if not outs:
+        return []
+    size = SHORTLIST
+    while size > 2 and len(outs) * size * (size - 1) // 2 > TWO_FOR_ONE_SETS:
+        size -= 1
+    closed = [k for k in cand if k not in hubs]
+    short = sorted(closed, key=lambda k: proxy(hubs + [k]))[:size]
     return [
         [k for k in hubs if k not in out] + list(pair)
         for out in outs

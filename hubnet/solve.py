@@ -529,7 +529,14 @@ def solve_network(
                 _fix_by_reduced_cost(model, relaxed, start[2], progress)
             elif _flow_fixing_pays(params, requested, start, _left(opts, t_run), build_seconds):
                 start, allowed = _narrow_by_flow_relaxation(
-                    model, data, d, params, start, _left(opts, t_run), progress
+                    model,
+                    data,
+                    d,
+                    params,
+                    start,
+                    _left(opts, t_run),
+                    progress,
+                    searched=start_hubs is None,
                 )
                 branched, start = _branch_on_narrowed_path(
                     data, d, params, _left(opts, t_run), allowed, start, progress
@@ -950,6 +957,7 @@ def _narrow_by_flow_relaxation(
     start: Start,
     left: SolverParams,
     progress: Progress,
+    searched: bool = False,
 ) -> tuple[Start, np.ndarray | None]:
     """The allocations that a plan cheaper than the start may use.
 
@@ -963,7 +971,8 @@ def _narrow_by_flow_relaxation(
     hubs: 1,634 of 2,500, 29 of 50 hubs); then each hub left is forced open
     in turn (:func:`_probe_hubs`; 5 hubs: 12 closed by reduced cost, 24
     more by probing). ``start`` is ``(hubs, allocation, cost)``; ``left``
-    holds the time left of the run (s). Returns the start (perhaps a
+    holds the time left of the run (s); ``searched`` says the start came
+    from the local search (not from hubs given). Returns the start (perhaps a
     cheaper one) and the ``(n, n)`` allocations left in (``None`` when the
     LP was not solved); ``model`` is left with no value set.
     """
@@ -985,7 +994,9 @@ def _narrow_by_flow_relaxation(
             progress("linear relaxation not solved in time: no allocation ruled out")
             return start, None
         budget = start_budget(data.n, params.allocation, left.time_limit_s, params.hubs)
-        start = _lp_guided_start(model, data, d, params, start, (budget, left.threads), progress)
+        start = _lp_guided_start(
+            model, data, d, params, start, (budget, left.threads), progress, searched
+        )
         slack = start[2] - float(bound) + 1e-7 * max(1.0, abs(start[2]))
         # At its upper bound a reduced cost is <= 0 and says nothing.
         out = {key for key, var in model.assign.items() if max(var.dj or 0.0, 0.0) > slack}
@@ -1137,6 +1148,7 @@ def _lp_guided_start(
     start: Start,
     limits: tuple[float, int | None],
     progress: Progress,
+    searched: bool = False,
 ) -> Start:
     """The cheaper of ``start`` and a local search from the LP's favourite hubs.
 
@@ -1145,7 +1157,9 @@ def _lp_guided_start(
     more) seed the swap search. On AP, 40 sites, 3 hubs the greedy start
     was 1.9 % above the optimum and this one is the optimum, which makes
     the reduced-cost fixing far stronger. ``limits``: the search's wall
-    time at most (s), and the run's HiGHS threads.
+    time at most (s), and the run's HiGHS threads. When ``searched`` (the
+    start came from the same search) and the LP favours the start's own
+    hubs, the search is not run again.
     """
     budget_s, threads = limits
     value = {k: float(v.varValue or 0.0) for k, v in enumerate(model.hub) if v is not None}
@@ -1160,10 +1174,13 @@ def _lp_guided_start(
                 seed.append(k)
     else:
         seed = sorted({k for k in ranked if value[k] >= 0.5} | set(forced)) or ranked[:1]
-    # From the start's own hubs the search would only retrace its steps.
+    # From the start's own hubs the same search would only retrace its
+    # steps (AP capacitated, 20-25 sites: 0.3-0.5 s).
     same = sorted(seed) == sorted(start[0])
     found = (
-        None if same else starting_plan(data, d, params, max_seconds=budget_s, initial_hubs=seed)
+        None
+        if same and searched
+        else starting_plan(data, d, params, max_seconds=budget_s, initial_hubs=seed)
     )
     if found is not None and found[2] < start[2]:
         progress(f"plan from the relaxation's hubs: cost {found[2]:,.2f} (start {start[2]:,.2f})")
@@ -1172,7 +1189,7 @@ def _lp_guided_start(
         # Under tight sort capacities the search's allocation rule can miss
         # by several per cent on the right hubs (AP, 25 sites, LL: 4.4 %):
         # allocate the relaxation's hubs and the start's exactly.
-        for hubs in (seed, start[0]):
+        for hubs in [seed] + ([] if sorted(seed) == sorted(start[0]) else [start[0]]):
             exact = _allocate_exactly(
                 data, d, params, hubs, (min(EXACT_ALLOCATION_S, budget_s), threads)
             )
