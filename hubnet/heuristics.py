@@ -401,6 +401,11 @@ class _Pricer:
             + (hubs_t.T - hubs_t[:, cur][None, :]) @ in_i
         )
 
+    def assigned_cost(self, hubs: list[int], assign: np.ndarray) -> float:
+        """Cost of allocation ``assign`` (each site's hub, a matrix index) to ascending ``hubs``."""
+        h = np.asarray(hubs)
+        return self.single_cost(h, np.searchsorted(h, assign))
+
     def single_cost(self, h: np.ndarray, assign_pos: np.ndarray) -> float:
         n = len(assign_pos)
         hub_of = h[assign_pos]
@@ -761,18 +766,13 @@ def starting_plan(
         key = tuple(h)
         if key not in quick:
             got = pricer.allocate(h)
-            priced = (
-                np.inf
-                if got is None
-                else pricer.single_cost(np.asarray(h), np.searchsorted(h, got))
-            )
-            quick[key] = (priced, got)
+            quick[key] = (np.inf if got is None else pricer.assigned_cost(h, got), got)
         cost, assign = quick[key]
         if assign is None:
             return np.inf, None
         if params.capacitated and cost <= (1 + REFINE_MARGIN) * incumbent:
             assign = pricer.refine(h, assign, patience=REFINE_PATIENCE)
-            cost = pricer.single_cost(np.asarray(h), np.searchsorted(h, assign))
+            cost = pricer.assigned_cost(h, assign)
         return cost, assign
 
     # The quick allocation of the sets priced this round, by hub set: the
@@ -871,7 +871,7 @@ def starting_plan(
         h = sorted(hubs)
         patience = FINAL_PATIENCE_PER_SITE * (len(assign) - len(h))
         assign = pricer.refine(h, assign, kicks=FINAL_KICKS, deadline=t_end, patience=patience)
-        cost = pricer.single_cost(np.asarray(h), np.searchsorted(h, assign))
+        cost = pricer.assigned_cost(h, assign)
     return sorted(hubs), assign, float(cost)
 
 
@@ -975,9 +975,7 @@ def single_allocation_cost(
     distribution, and the open hubs' fixed costs.
     """
     a = np.asarray(assign, dtype=np.int64)
-    h = np.unique(a)
-    pos = np.searchsorted(h, a)
-    return _Pricer(data, d, params).single_cost(h, pos)
+    return _Pricer(data, d, params).assigned_cost(np.unique(a).tolist(), a)
 
 
 def polish_multiple(

@@ -376,8 +376,7 @@ def _cheapest_of(
         assign = pr.allocate(hubs)
         if assign is None:
             continue
-        where = np.searchsorted(np.asarray(hubs), assign)
-        cost = float(pr.single_cost(np.asarray(hubs), where))
+        cost = pr.assigned_cost(hubs, assign)
         if best is None or cost < best[2]:
             best = (hubs, np.asarray(assign, dtype=np.int64), cost)
     return best
