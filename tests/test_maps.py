@@ -6,6 +6,7 @@ a real browser.
 
 from __future__ import annotations
 
+import html
 import json
 import re
 import shutil
@@ -21,6 +22,7 @@ from hubnet.errors import HubnetError, InputError, OutputExistsError
 from hubnet.report.assets import leaflet_css, leaflet_js, leaflet_version
 from hubnet.report.maps import (
     LEG_FIELDS,
+    MAP_CAUTION,
     TILES,
     leg_popup,
     map_from_run,
@@ -61,6 +63,14 @@ def test_map_from_folder_files_equals_map_written_at_solve_time(run_dir: Path) -
         return re.sub(r"_[0-9a-f]{32}", "_ID", page)
 
     assert normalised(map_from_run(run_dir)) == normalised((run_dir / "map.html").read_text())
+
+
+def test_map_carries_the_regulations_caution(run_dir: Path) -> None:
+    # A map is forwarded on its own, without the run folder's summary.json:
+    # the drivers'-hours and weights caution must travel with it.
+    page = html.unescape((run_dir / "map.html").read_text())
+    assert MAP_CAUTION in page
+    assert "local regulations" in MAP_CAUTION and "Drivers' hours" in MAP_CAUTION
 
 
 def test_map_loads_no_script_or_stylesheet_from_anywhere(run_dir: Path) -> None:

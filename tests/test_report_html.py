@@ -4,8 +4,10 @@ from __future__ import annotations
 
 import html
 import json
+import os
 import re
 import shutil
+import stat
 from pathlib import Path
 
 import pandas as pd
@@ -15,6 +17,14 @@ from typer.testing import CliRunner
 
 from hubnet.cli import app
 from hubnet.report.charts import grouped_bars, nice_ticks, rank_size_plot
+from hubnet.report.fmt import (
+    CLASS_COLOURS,
+    HUB_COLOUR,
+    OTHER_TIER_COLOUR,
+    RUN_COLOURS,
+    TIER_COLOURS,
+    fmt_gap,
+)
 from hubnet.report.html import report_html, write_report
 from hubnet.report.summary import STANDING_CAUTIONS
 
@@ -131,8 +141,15 @@ def test_run_without_sites_still_reports(runs: tuple[Path, Path], tmp_path: Path
 
 def test_write_report_and_cli(runs: tuple[Path, Path], tmp_path: Path) -> None:
     out = tmp_path / "report.html"
-    write_report(runs, out, tiles="none")
+    old_mask = os.umask(0o022)
+    try:
+        write_report(runs, out, tiles="none")
+    finally:
+        os.umask(old_mask)
     assert out.read_text().startswith("<!DOCTYPE html>")
+    # Readable by others as any new file is (0666 less the umask 022), not
+    # private to its owner as a bare temporary file would be.
+    assert stat.S_IMODE(out.stat().st_mode) == 0o644
     runner = CliRunner()
     refused = runner.invoke(app, ["report", *map(str, runs), "--out", str(out)])
     assert refused.exit_code == 5 and "already exists" in refused.output
@@ -160,3 +177,23 @@ def test_charts_escape_and_scale() -> None:
     assert plot.count("<circle") == 3  # the zero volume has no logarithm: left out
     empty = rank_size_plot(["r"], [[]], title="x", unit="pallets")
     assert "no leg volume" in empty
+
+
+def test_run_colours_differ_from_map_colours() -> None:
+    # The report shows runs' charts above maps of the same runs: a run's
+    # colour must never be read as a tier's, a vehicle class's or the hubs'.
+    map_colours = {*TIER_COLOURS.values(), OTHER_TIER_COLOUR, HUB_COLOUR, *CLASS_COLOURS}
+    assert not {c.upper() for c in RUN_COLOURS} & {c.upper() for c in map_colours}
+    assert len(set(RUN_COLOURS)) == len(RUN_COLOURS)
+
+
+def test_gap_in_fixed_point() -> None:
+    # The terminal prints a gap as a fixed-point percentage (4 decimals); the
+    # report and map must not switch to exponent form for small gaps.
+    assert fmt_gap(6e-7) == "0.0001 %"
+    assert fmt_gap(1e-8) == "< 0.0001 %"
+    assert fmt_gap(0.000123) == "0.0123 %"
+    assert fmt_gap(0.031734) == "3.17 %"
+    assert fmt_gap(0.0) == "0 %"
+    assert fmt_gap(None) == "unknown"
+    assert all("e" not in fmt_gap(10.0**-k) for k in range(1, 12))

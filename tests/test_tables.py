@@ -438,7 +438,7 @@ def test_summary_hand_case():
     assert isinstance(s["hubnet_version"], str) and s["hubnet_version"]
     assert s["cautions"] == list(STANDING_CAUTIONS)
     assert any("decision aid" in c for c in s["cautions"])
-    assert any("regulations" in c and "confirm" in c for c in s["cautions"])
+    assert any("regulations" in c and "confirm" in c.lower() for c in s["cautions"])
     assert _strict_json(summary_json(s)) == s
 
 

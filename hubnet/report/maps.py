@@ -177,6 +177,7 @@ body, .leaflet-container { font: 13px/1.35 system-ui, -apple-system, "Segoe UI",
   padding: 1px 10px 1px 0; vertical-align: top; white-space: nowrap; }
 .hn-box td, .hn-pop td { padding: 1px 0; overflow-wrap: anywhere; }
 .hn-legend { bottom: 44px; left: 10px; font-size: 12px; }
+.hn-caution { color: #4a4f57; font-size: 11px; margin-top: 5px; }
 .hn-legend .hn-k { display: inline-block; width: 38px; text-align: center;
   vertical-align: middle; }
 .hn-legend div { margin: 1px 0; }
@@ -482,6 +483,14 @@ def _mapping(value: Any) -> dict[str, Any]:
     return {str(k): v for k, v in value.items()} if isinstance(value, Mapping) else {}
 
 
+#: Shown under the headline figures of every map: a map travels further than
+#: its run folder (see the cautions in ``summary.json``).
+MAP_CAUTION = (
+    "Planning advice only. Drivers' hours, vehicle weights and dimensions are not "
+    "guaranteed: check every leg and vehicle against your local regulations."
+)
+
+
 def _headline(run: RunData, note: str = "", *, open_box: bool = True) -> str:
     """The fixed box with the scenario's name and headline figures (``note``: HTML after)."""
     s = run.summary
@@ -512,7 +521,8 @@ def _headline(run: RunData, note: str = "", *, open_box: bool = True) -> str:
     return (
         f"<details{' open' if open_box else ''} class='hn-box hn-head{warn}' id='hn-headline'>"
         f"<summary class='hn-title'>{esc(run.scenario)}</summary>{desc}"
-        f"<table>{_rows(rows)}</table>{note}</details>"
+        f"<table>{_rows(rows)}</table>{note}<div class='hn-caution'>{esc(MAP_CAUTION)}</div>"
+        "</details>"
     )
 
 
@@ -966,6 +976,13 @@ def map_from_run(
     return map_html(read_run(run_dir, sites=sites), tiles=tiles)
 
 
+def _umask() -> int:
+    """The process's file-creation mask (read by setting it and setting it back)."""
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
 def write_text_atomic(path: str | Path, text: str, *, force: bool = False) -> Path:
     """Write a text file whole or not at all (temporary file, then rename).
 
@@ -993,6 +1010,10 @@ def write_text_atomic(path: str | Path, text: str, *, force: bool = False) -> Pa
     path.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
     try:
+        # mkstemp makes the file private (0600); give it the permissions any
+        # other new file gets (0666 less the umask), so colleagues and web
+        # servers can read a report or map as they read the run folder.
+        os.chmod(tmp, 0o666 & ~_umask())
         with os.fdopen(fd, "wb") as fh:
             fh.write(text.encode("utf-8"))
             fh.flush()

@@ -82,9 +82,11 @@ STANDING_CAUTIONS: tuple[str, ...] = (
     "This plan is a decision aid, not an operating instruction: it is only as good as "
     "the input data and parameters, and it must be reviewed by people who know the "
     "network before it is acted on.",
-    "Drivers' hours, vehicle weights and vehicle dimensions follow the regulations "
-    "where the vehicles run; the user must confirm that every leg and vehicle of the "
-    "plan complies with the local regulations.",
+    "Drivers' hours, vehicle weights and vehicle dimensions are governed by the "
+    "regulations where the vehicles run, and hubnet does not guarantee compliance: it "
+    "applies only the daily driving and break limits of the rule set chosen, and does "
+    "not check weights or dimensions. Confirm that every leg and vehicle of the plan "
+    "complies with your local regulations before acting on it.",
 )
 
 
