@@ -41,15 +41,17 @@ CLASS_COLOURS: tuple[str, ...] = (
     "#000000",
     "#F0E442",
 )
-#: Colours of runs in the report's charts, first run first.
+#: Colours of runs in the report's charts, first run first: Paul Tol's
+#: colour-blind-safe "muted" scheme, none of them a tier's, a class's or the
+#: hubs' colour on the maps of the same page.
 RUN_COLOURS: tuple[str, ...] = (
-    "#0072B2",
-    "#E69F00",
-    "#009E73",
-    "#CC79A7",
-    "#56B4E9",
-    "#D55E00",
-    "#000000",
+    "#332288",  # indigo
+    "#CC6677",  # rose
+    "#117733",  # green
+    "#999933",  # olive
+    "#882255",  # wine
+    "#44AA99",  # teal
+    "#AA4499",  # purple
 )
 
 #: Singular of each volume unit, for "currency per pallet".
@@ -116,13 +118,22 @@ def fmt_share(value: Any, decimals: int = 1) -> str:
 
 
 def fmt_gap(value: Any) -> str:
-    """A relative gap as a percentage with enough digits: ``0.0123`` -> ``1.23 %``."""
+    """A relative gap as a percentage in fixed point, never in exponent form.
+
+    ``0.0123`` -> ``1.23 %``, ``0.000123`` -> ``0.0123 %``, ``6e-7`` ->
+    ``0.0001 %`` (as the terminal prints it), below half of that ``< 0.0001 %``.
+    """
     x = number(value)
     if x is None:
         return "unknown"
     if abs(x) < 1e-9:
         return "0 %"
-    return f"{100 * x:.3g} %"
+    pct = 100 * x
+    if abs(pct) < 0.00005:
+        return "< 0.0001 %"
+    if abs(pct) < 0.01:
+        return f"{pct:.4f} %"
+    return f"{float(f'{pct:.3g}'):g} %"
 
 
 def fmt_signed(value: Any, decimals: int | None = None) -> str:

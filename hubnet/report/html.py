@@ -249,7 +249,7 @@ def _headline_rows(runs: Sequence[RunData]) -> list[Row]:
         ("", "Hubs", "", lambda r: len(_hub_ids(r)), "num"),
         ("sub", "Hub sites", "", lambda r: ", ".join(_hub_ids(r)) or "none", "text"),
         ("", "Volume", f"{unit} per day", lambda r: r.summary.get("total_volume"), "num"),
-        ("", "Cost per unit", f"per {singular(unit)}", _cost_per_unit, "num"),
+        ("", f"Cost per {singular(unit)}", "", _cost_per_unit, "num"),
         ("", "Unit-km", f"{unit} × km per day", lambda r: r.summary.get("unit_km"), "num"),
     ]
     tiers = [t for t in TIER_ORDER if any(number(_legs_by_tier(r).get(t)) for r in runs)]
