@@ -425,6 +425,22 @@ class _Master:
         return int(closed.sum()), int(opened.sum())
 
 
+def _logged(progress: Progress, lines: list[str], t0: float) -> Progress:
+    """``progress`` that also keeps each line, stamped with the seconds since ``t0``."""
+
+    def say(message: str) -> None:
+        lines.append(f"{time.perf_counter() - t0:9.2f} s  {message}")
+        progress(message)
+
+    return say
+
+
+def _log_text(lines: list[str]) -> str:
+    """The kept lines as a log file's text, with a heading."""
+    head = "Benders decomposition for multiple allocation: master (hub choice) and routing LPs\n"
+    return head + "".join(f"{line}\n" for line in lines)
+
+
 def solve_multiple_benders(
     data: NetworkData,
     d: np.ndarray,
@@ -453,6 +469,10 @@ def solve_multiple_benders(
         Best hub set (matrix indices) and the solve report.
     """
     t0 = time.perf_counter()
+    # The decomposition's own log (solver.log in the run folder): each round's
+    # bound and plan, with the seconds since the start.
+    log_lines: list[str] = []
+    progress = _logged(progress, log_lines, t0)
     use_threads(opts.threads)
     cand = np.array([k for k, s in enumerate(data.sites) if s.is_candidate])
     q = len(cand)
@@ -736,6 +756,7 @@ def solve_multiple_benders(
             solve_seconds=seconds,
             build_seconds=0.0,
             formulation="multiple-allocation Benders (EK98 flows projected out)",
+            log=_log_text(log_lines),
         )
     finite_bound = float(bound) if np.isfinite(bound) else None
     gap_value = (
@@ -758,4 +779,5 @@ def solve_multiple_benders(
             "integer_rounds": rounds,
             "cuts": n_cuts,
         },
+        log=_log_text(log_lines),
     )

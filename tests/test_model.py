@@ -404,6 +404,9 @@ def test_benders_from_a_poor_start_reaches_the_enumerated_optimum(seed: int, p: 
         assert stats.best_bound is not None
         assert stats.best_bound <= want * (1 + 1e-9)
         assert (want - stats.best_bound) / want <= 1e-6
+        # Its log (the run folder's solver.log) holds every round it reported.
+        assert all(line in stats.log for line in said), (solver, stats.log)
+        assert said and stats.log.count("\n") == len(said) + 1
 
 
 def test_no_benders_round_starts_without_room_for_it() -> None:
