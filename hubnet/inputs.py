@@ -411,6 +411,40 @@ def _read(
     return label, _clean_columns(frame)
 
 
+#: A number written with a decimal comma: ``40,4168``, ``-3,5``.
+_DECIMAL_COMMA = r"^\s*[+-]?\d+,\d+\s*$"
+#: A whole number, which reads the same under either decimal mark.
+_WHOLE = r"^\s*[+-]?\d+\s*$"
+
+
+def _decimal_commas(frame: pd.DataFrame) -> pd.DataFrame:
+    """Read decimal commas as points in the columns written wholly with them.
+
+    Spreadsheets in locales whose decimal mark is the comma save CSV with
+    semicolons between cells and ``40,4168`` in them. A column changes only
+    when at least one cell has a decimal comma and every other filled cell is
+    a whole number, so text columns and columns already written with points
+    stay as they are (their problems are reported as usual).
+    """
+    out = frame
+    for name in frame.columns:
+        cells = frame[name]
+        if not pd.api.types.is_object_dtype(cells.dtype) and not pd.api.types.is_string_dtype(
+            cells.dtype
+        ):
+            continue
+        text = cells.astype(str)
+        comma = text.str.match(_DECIMAL_COMMA)
+        if not comma.any():
+            continue
+        fits = comma | text.str.match(_WHOLE) | (text.str.strip() == "")
+        if bool(fits.all()):
+            if out is frame:
+                out = frame.copy()
+            out[name] = text.str.replace(",", ".", regex=False)
+    return out
+
+
 def _read_csv(path: Path) -> pd.DataFrame:
     with path.open("rb") as handle:
         start = handle.read(65536)
@@ -425,7 +459,7 @@ def _read_csv(path: Path) -> pd.DataFrame:
                 sep = ";"
             else:
                 sep = ","
-            return pd.read_csv(
+            frame = pd.read_csv(
                 path,
                 sep=sep,
                 dtype=str,
@@ -434,6 +468,7 @@ def _read_csv(path: Path) -> pd.DataFrame:
                 keep_default_na=False,
                 skip_blank_lines=False,
             )
+            return _decimal_commas(frame) if sep == ";" else frame
         except UnicodeDecodeError:
             continue
         except pd.errors.EmptyDataError:

@@ -159,6 +159,37 @@ def test_semicolon_csv_with_bom_and_windows_encoding(tmp_path: Path) -> None:
     assert net.demand[0].volume == 7.0
 
 
+def test_semicolon_csv_with_decimal_commas(tmp_path: Path) -> None:
+    # As a spreadsheet set to a decimal-comma locale saves CSV: semicolons
+    # between cells, commas in numbers. Columns wholly in that form are read
+    # as numbers; a name column with a comma in one cell stays text.
+    sites = tmp_path / "sites.csv"
+    sites.write_bytes(
+        "id;name;lat;lon;handling_cost\r\n"
+        "MAD;Madrid, centro;40,4168;-3,7038;1,25\r\n"
+        "LIS;Lisboa;38,7223;-9,1393;2\r\n".encode("cp1252")
+    )
+    demand = tmp_path / "demand.csv"
+    demand.write_bytes(b"origin;destination;volume\r\nMAD;LIS;12,5\r\nLIS;MAD;7\r\n")
+    net = load_network(scenario(tmp_path, sites, demand))
+    assert [s.name for s in net.sites] == ["Madrid, centro", "Lisboa"]
+    assert [(s.lat, s.lon) for s in net.sites] == [(40.4168, -3.7038), (38.7223, -9.1393)]
+    assert [s.handling_cost for s in net.sites] == [1.25, 2.0]
+    assert [d.volume for d in net.demand] == [12.5, 7.0]
+
+
+def test_mixed_decimal_marks_in_one_column_are_reported(tmp_path: Path) -> None:
+    # One column with both marks is ambiguous: nothing is guessed, the comma
+    # cell is reported with its file, row and column.
+    sites = tmp_path / "sites.csv"
+    sites.write_text("id;lat;lon\nA;40.5;-3,5\nB;41,5;-3.25\n")
+    with pytest.raises(InputError) as err:
+        load_network(scenario(tmp_path, sites, "origin,destination,volume\nA,B,1\n"))
+    text = str(err.value)
+    assert "sites.csv" in text and "row 3" in text and "'41,5'" in text
+    assert "row 2" in text and "'-3,5'" in text
+
+
 def test_distance_matrix_in_site_order_with_hours(tmp_path: Path) -> None:
     distances = """\
 origin,destination,distance_km,hours
