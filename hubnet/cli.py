@@ -36,6 +36,32 @@ app = typer.Typer(
     no_args_is_help=True,
     help="Design hub-and-spoke freight networks: pick hubs, route every flow, write the plan.",
 )
+
+
+def _show_version(value: bool) -> None:
+    if value:
+        from hubnet.report.summary import hubnet_version
+
+        typer.echo(f"hubnet {hubnet_version()}")
+        raise typer.Exit(EXIT_OK)
+
+
+@app.callback()
+def _root(
+    version: Annotated[
+        bool,
+        typer.Option(
+            "--version",
+            callback=_show_version,
+            is_eager=True,
+            metavar="",
+            help="Print hubnet's version and exit.",
+        ),
+    ] = False,
+) -> None:
+    """Design hub-and-spoke freight networks: pick hubs, route every flow, write the plan."""
+
+
 # soft_wrap: never break a line at the terminal width, so every problem stays on
 # one line (file, row, column, message) for grep and for a scheduler's log.
 _err = err_console

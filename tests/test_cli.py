@@ -14,6 +14,7 @@ byte for byte as it was.
 from __future__ import annotations
 
 import csv
+import importlib.metadata
 import json
 import os
 import shutil
@@ -180,6 +181,9 @@ def test_console_script(demo_run: tuple[Result, Path], tmp_path: Path) -> None:
     helped = run("--help")
     assert helped.returncode == 0
     assert "solve" in helped.stdout and "check" in helped.stdout
+    version = run("--version")
+    assert version.returncode == 0
+    assert version.stdout.strip() == f"hubnet {importlib.metadata.version('hubnet')}"
 
     checked = run("check", DEMO_CONFIG)
     assert checked.returncode == 0, checked.stderr
