@@ -174,7 +174,7 @@ def test_site_popup_shows_hub_figures_and_escapes() -> None:
     html = site_popup("MAD", XSS_NAME, hub, ["MAD"], 1200.0, 1100.0, True, "pallets")
     assert XSS_NAME not in html and "&lt;img src=x onerror=alert(1)&gt;" in html
     assert "<th>Throughput</th><td>5,734 pallets per day</td>" in html
-    assert "<th>Capacity used</th><td>52.8 %</td>" in html
+    assert "<th>Capacity used by inbound</th><td>52.8 %</td>" in html
     assert "Hub" in html
     terminal = site_popup("ZAR", "Zaragoza", None, ["MAD"], 10.0, 12.5, True, "pallets")
     assert "candidate hub, not opened" in terminal

@@ -417,15 +417,18 @@ def _hub_rows(hub: Mapping[str, Any], unit: str) -> list[tuple[str, str]]:
     rows = [
         ("Throughput", _value(hub.get("throughput_per_day"), per_day, "num")),
         ("Inbound from its terminals", _value(hub.get("inbound_per_day"), per_day, "num")),
-        ("Sort capacity", _value(hub.get("sort_capacity_per_day"), per_day, "num")),
-        ("Capacity used", fmt_share(hub.get("utilisation"))),
+        # The sort capacity limits the inbound volume (the classic capacitated
+        # model's rule), not the throughput: the labels say so, since an
+        # operator would read "capacity" as everything sorted.
+        ("Sort capacity, for inbound", _value(hub.get("sort_capacity_per_day"), per_day, "num")),
+        ("Capacity used by inbound", fmt_share(hub.get("utilisation"))),
         ("Terminals", _value(hub.get("terminal_count"), "", "num")),
         ("Fixed cost", _value(hub.get("fixed_cost_per_day"), "per day", "num")),
         ("Handling cost", _value(hub.get("handling_cost_per_day"), "per day", "num")),
     ]
     if number(hub.get("sort_capacity_per_day")) is None:
-        rows[2] = ("Sort capacity", "unlimited")
-        rows[3] = ("Capacity used", "–")
+        rows[2] = ("Sort capacity, for inbound", "unlimited")
+        rows[3] = ("Capacity used by inbound", "–")
     return rows
 
 
