@@ -1424,6 +1424,7 @@ def solve_freight(
         )
     else:
         say("no starting plan found quickly; the solver starts from scratch")
+    kept = "starting plan"
     if fp.minimise == "transit":
         # The fastest plan: least unit-hours first, then the cheapest plan that
         # keeps that average transit time (a lexicographic optimum).
@@ -1438,14 +1439,23 @@ def solve_freight(
         cap = fastest * (1.0 + 1e-5) + 1e-5
         if fp.max_transit_h is not None:
             cap = min(cap, fp.max_transit_h)
+        first = read_plan(model, fp)
         fp = dataclasses.replace(fp, minimise="cost", max_transit_h=cap)
+        # The least-transit plan keeps the cap by construction: it is the plan to
+        # fall back on when the cheapest-at-that-time stage finds nothing within
+        # its share of the limit (16 terminals, 30 s a point: the fastest end of
+        # a frontier was lost that way, and with it every point between).
+        first_cost = _priced_start(data, st, params, fp, first)
+        start_cost = _priced_start(data, st, params, fp, start)
+        if first_cost is not None and (start_cost is None or first_cost < start_cost):
+            start, kept = first, "least-transit plan"
     # The starting plan is not handed to the solver as a MIP start: HiGHS 1.16
     # and CBC 2.10 were both seen to stop at a given start and call it optimal
     # with a wrong objective (tests/test_freight.py). It is kept instead, and
     # returned when the solver ends with nothing better.
     fallback = _priced_start(data, st, params, fp, start)
     if fallback is not None:
-        say(f"starting plan costs {fallback:,.2f}; kept in case the solver finds nothing better")
+        say(f"{kept} costs {fallback:,.2f}; kept in case the solver finds nothing better")
     # With a time limit and a starting plan that meets every constraint, the
     # whole model leaves a share of the time for re-planning the best plan's
     # hubs (polish_plan) in case it stops short of its gap.
@@ -1466,7 +1476,6 @@ def solve_freight(
     else:
         plan = read_plan(model, fp)
         sol = evaluate_freight(data, st, params, fp, plan, stats, scenario=scenario)
-    kept = "starting plan"
     if polishing and stats.status != "optimal":
         assert start is not None and fallback is not None and opts.time_limit_s is not None
         base, base_cost = start, fallback
