@@ -191,6 +191,7 @@ def test_dispatch_rows_add_up_to_their_leg(tables: dict[str, pd.DataFrame]) -> N
             ("volume", "volume_per_day"),
             ("cost", "cost_per_day"),
             ("vehicle_km", "vehicle_km"),
+            ("co2e_ttw_kg", "co2e_ttw_kg"),
             ("co2e_wtw_kg", "co2e_wtw_kg"),
         ):
             assert rows[column].sum() == pytest.approx(leg[leg_column], rel=1e-9, abs=1e-9)
@@ -203,6 +204,7 @@ def test_dispatch_rows_add_up_to_their_leg(tables: dict[str, pd.DataFrame]) -> N
             # each class's CO2e is its own litres x factor, even on a mixed leg
             litres = row["vehicle_km"] * vehicle(row["vehicle_class"])["fuel_l_per_100km"] / 100
             assert row["co2e_wtw_kg"] == pytest.approx(litres * DIESEL_WTW_KG_PER_L, rel=1e-9)
+            assert row["co2e_ttw_kg"] == pytest.approx(litres * DIESEL_TTW_KG_PER_L, rel=1e-9)
             # volume split by capacity: every class has the leg's fill
             assert row["fill"] == pytest.approx(leg["fill"], rel=1e-9, abs=1e-12)
             assert row["volume"] <= row["dispatches"] * row["payload"] + 1e-9
@@ -256,6 +258,7 @@ def test_hierarchy_agrees_with_the_legs(
         assert row["driving_h"] == pytest.approx(driving)
         assert row["avg_speed_kmh"] == pytest.approx(row["vehicle_km"] / driving)
         assert row["co2e_wtw_kg"] == pytest.approx(mine["co2e_wtw_kg"].sum())
+        assert row["co2e_ttw_kg"] == pytest.approx(mine["co2e_ttw_kg"].sum())
         assert row["share_of_time"] == pytest.approx(
             (mine["volume_per_day"] * mine["transit_h"]).sum() / route_hours
         )

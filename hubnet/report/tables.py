@@ -200,6 +200,10 @@ FREIGHT_COLUMNS: dict[str, dict[str, str]] = {
             "and carbon price), currency per day; the rows of a run add up to its legs.csv "
             "cost_per_day."
         ),
+        "co2e_ttw_kg": (
+            "Tank-to-wheel CO2e of the class's runs, kg per day (vehicle-km x the class's "
+            "fuel use x the fuel's tank-to-wheel factor)."
+        ),
         "co2e_wtw_kg": (
             "Well-to-wheel CO2e of the class's runs, kg per day (vehicle-km x the class's "
             "fuel use x the fuel's well-to-wheel factor)."
@@ -242,6 +246,7 @@ FREIGHT_COLUMNS: dict[str, dict[str, str]] = {
             "of each leg over volume x transit_h of each OD route), a fraction; the all row "
             "is the share on the road, the rest is sorting at hubs."
         ),
+        "co2e_ttw_kg": "Sum of the legs' tank-to-wheel CO2e, kg per day.",
         "co2e_wtw_kg": "Sum of the legs' well-to-wheel CO2e, kg per day.",
     },
 }
@@ -356,9 +361,9 @@ class ClassRun:
     share
         The class's share of the leg's capacity (of its dispatches when a
         payload is unknown), 0..1: its share of the leg's volume and cost.
-    co2e_wtw_kg
-        Well-to-wheel CO2e of the class's runs, kg per day (NaN when the
-        leg has none).
+    co2e_wtw_kg, co2e_ttw_kg
+        Well-to-wheel and tank-to-wheel CO2e of the class's runs, kg per day
+        (NaN when the leg has none).
     """
 
     leg: Leg
@@ -367,6 +372,7 @@ class ClassRun:
     payload: float
     share: float
     co2e_wtw_kg: float
+    co2e_ttw_kg: float = math.nan
 
     @property
     def volume(self) -> float:
@@ -429,14 +435,10 @@ def class_runs(sol: Solution, leg: Leg, classes: Sequence[str] | None = None) ->
         shares = [c / sum(caps) for c in caps]
     else:
         shares = [n / total_n for _, n in counts]
-    rates: list[float] = []
-    for c, _ in counts:
-        co2e, vkm = _class_figure(sol, c, "co2e_wtw_kg"), _class_figure(sol, c, "vehicle_km")
-        rates.append(co2e / vkm if co2e is not None and vkm else math.nan)
-    weights = [n * r for (_, n), r in zip(counts, rates, strict=True)]
-    if not all(math.isfinite(w) for w in weights) or sum(weights) <= 0:
-        weights = [n for _, n in counts]
-    leg_co2e = math.nan if leg.co2e_wtw_kg is None else float(leg.co2e_wtw_kg)
+    split = {
+        key: _co2e_split(sol, counts, key, getattr(leg, key))
+        for key in ("co2e_wtw_kg", "co2e_ttw_kg")
+    }
     return [
         ClassRun(
             leg=leg,
@@ -444,10 +446,32 @@ def class_runs(sol: Solution, leg: Leg, classes: Sequence[str] | None = None) ->
             dispatches=n,
             payload=p,
             share=share,
-            co2e_wtw_kg=leg_co2e * w / sum(weights),
+            co2e_wtw_kg=wtw,
+            co2e_ttw_kg=ttw,
         )
-        for (c, n), p, share, w in zip(counts, payloads, shares, weights, strict=True)
+        for (c, n), p, share, wtw, ttw in zip(
+            counts, payloads, shares, split["co2e_wtw_kg"], split["co2e_ttw_kg"], strict=True
+        )
     ]
+
+
+def _co2e_split(
+    sol: Solution, counts: Sequence[tuple[str, float]], key: str, leg_kg: float | None
+) -> list[float]:
+    """A leg's CO2e (``key``, kg per day) split over its classes' runs.
+
+    In proportion to dispatches x the class's CO2e per vehicle-km on that
+    basis (exact, as fuel use is per km); by dispatches when a rate is unknown.
+    """
+    rates: list[float] = []
+    for c, _ in counts:
+        co2e, vkm = _class_figure(sol, c, key), _class_figure(sol, c, "vehicle_km")
+        rates.append(co2e / vkm if co2e is not None and vkm else math.nan)
+    weights = [n * r for (_, n), r in zip(counts, rates, strict=True)]
+    if not all(math.isfinite(w) for w in weights) or sum(weights) <= 0:
+        weights = [n for _, n in counts]
+    total = math.nan if leg_kg is None else float(leg_kg)
+    return [total * w / sum(weights) for w in weights]
 
 
 def _none_nan(value: float | None) -> float:
@@ -610,6 +634,7 @@ def dispatches_table(sol: Solution) -> pd.DataFrame:
                     "vehicle_km": run.vehicle_km,
                     "drive_h": _none_nan(g.class_drive_h.get(run.vehicle_class, g.drive_h)),
                     "cost": run.cost,
+                    "co2e_ttw_kg": run.co2e_ttw_kg,
                     "co2e_wtw_kg": run.co2e_wtw_kg,
                 }
             )
@@ -721,6 +746,7 @@ def hierarchy_table(sol: Solution) -> pd.DataFrame:
             "share_of_time": _ratio(
                 float(sum(g.volume * (g.transit_h or 0.0) for g in legs)), route_hours
             ),
+            "co2e_ttw_kg": float(sum(g.co2e_ttw_kg or 0.0 for g in legs)),
             "co2e_wtw_kg": float(sum(g.co2e_wtw_kg or 0.0 for g in legs)),
         }
         return out
