@@ -140,6 +140,10 @@ class InputFiles:
     vehicles
         Optional vehicle class table; when given, the freight model plans
         vehicles on every leg.
+    fuels
+        Optional fuel emission factor table (TOML, as
+        ``hubnet/factors/fuels.toml``) replacing the bundled one; the
+        ``fuel`` column of the vehicles table names its fuels.
     """
 
     sites: Path
@@ -149,6 +153,7 @@ class InputFiles:
     allow_same_site_demand: bool = False
     sheet: str | None = None
     vehicles: Path | None = None
+    fuels: Path | None = None
 
 
 @dataclass(frozen=True, slots=True)
@@ -291,6 +296,7 @@ class _Inputs(_Strict):
     allow_same_site_demand: bool = False
     sheet: str | None = None
     vehicles: str | None = Field(default=None, min_length=1)
+    fuels: str | None = Field(default=None, min_length=1)
     kg_per_unit: float | None = Field(default=None, gt=0, allow_inf_nan=False)
     m3_per_unit: float | None = Field(default=None, gt=0, allow_inf_nan=False)
 
@@ -548,6 +554,7 @@ def parse_config(
             allow_same_site_demand=spec.inputs.allow_same_site_demand,
             sheet=spec.inputs.sheet,
             vehicles=resolve(spec.inputs.vehicles),
+            fuels=resolve(spec.inputs.fuels),
         ),
         distances=DistanceParams(**spec.distances.model_dump()),
         model=HubModelParams(**spec.model.model_dump()),

@@ -19,6 +19,7 @@ from typing import Literal
 
 import numpy as np
 
+from hubnet.emissions import FuelFactor
 from hubnet.errors import InputError, Problem
 from hubnet.fleet import VehicleClass
 from hubnet.units import VOLUME_UNITS
@@ -150,6 +151,10 @@ class NetworkData:
     vehicles
         Vehicle classes; when given, the freight model plans vehicles on
         every leg instead of the classic per-unit costs.
+    fuels
+        Fuel emission factors by fuel name, from the scenario's own table
+        (``inputs.fuels``); empty: the bundled table
+        (:func:`hubnet.emissions.load_fuels`).
     """
 
     sites: tuple[Site, ...]
@@ -159,6 +164,7 @@ class NetworkData:
     distances: DistanceMatrix | None = None
     allow_same_site_demand: bool = False
     vehicles: tuple[VehicleClass, ...] = ()
+    fuels: Mapping[str, FuelFactor] = field(default_factory=dict)
     _index: Mapping[str, int] = field(init=False, repr=False)
 
     def __post_init__(self) -> None:

@@ -170,7 +170,7 @@ def leg_tables(data: NetworkData, distances: DistanceMatrix, fp: FreightParams) 
         When the drivers'-hours rule file or a fuel is unknown.
     """
     rules = load_rules(fp.hours.rules)
-    fuels = load_fuels()
+    fuels = dict(data.fuels) if data.fuels else load_fuels()
     km = np.asarray(distances.km, dtype=float)
     n = km.shape[0]
     classes = data.vehicles

@@ -113,7 +113,8 @@ def input_hashes(config: ScenarioConfig) -> dict[str, dict[str, str]]:
     dict
         ``{"sites": {"path": ..., "sha256": ...}, "demand": ..., "distances": ...}``
         (``distances`` only when a matrix file is given). A freight scenario
-        (``inputs.vehicles`` set) adds ``vehicles``, and ``hours_rules`` when
+        (``inputs.vehicles`` set) adds ``vehicles``, ``fuels`` when
+        ``inputs.fuels`` names a fuel factor table, and ``hours_rules`` when
         ``hours.rules`` names a rule file rather than a built-in rule set. A
         file that cannot be read gets ``sha256 = "unreadable"``.
     """
@@ -122,6 +123,8 @@ def input_hashes(config: ScenarioConfig) -> dict[str, dict[str, str]]:
         files["distances"] = config.inputs.distances
     if config.inputs.vehicles is not None:
         files["vehicles"] = config.inputs.vehicles
+        if config.inputs.fuels is not None:
+            files["fuels"] = config.inputs.fuels
         rules = _rules_file(config)
         if rules is not None:
             files["hours_rules"] = rules

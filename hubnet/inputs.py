@@ -129,6 +129,7 @@ from pandera.errors import SchemaErrors
 
 from hubnet.config import CLOCK_EXPECT, DistanceMethod, ScenarioConfig, clock_hours, key_line
 from hubnet.data import CoordinateSystem, Demand, DistanceMatrix, HubStatus, NetworkData, Site
+from hubnet.emissions import FuelFactor
 from hubnet.errors import InputError, Problem
 from hubnet.fleet import TIERS, Tier, VehicleClass
 from hubnet.units import VOLUME_UNITS
@@ -1599,8 +1600,13 @@ def _network(
     problems: _Problems,
     sites_label: str,
     vehicles: _Table | None = None,
+    fuels: Mapping[str, FuelFactor] | None = None,
 ) -> NetworkData:
-    """Validate the tables together and build the network, or raise."""
+    """Validate the tables together and build the network, or raise.
+
+    ``fuels``: the scenario's own fuel emission factors (``None``: the
+    bundled table), kept on the network for the freight model.
+    """
     if opts.volume_unit not in VOLUME_UNITS:
         problems.add(
             opts.config_file,
@@ -1628,6 +1634,7 @@ def _network(
         distances=matrix,
         allow_same_site_demand=opts.allow_same_site_demand,
         vehicles=tuple(classes or ()),
+        fuels=dict(fuels or {}),
     )
 
 
@@ -1695,6 +1702,7 @@ def load_network(cfg: ScenarioConfig) -> NetworkData:
     demand = table(files.demand, "demand")
     distances = table(files.distances, "distances")
     vehicles = table(files.vehicles, "vehicles")
+    fuel_table = _fuel_table(files.fuels, problems)
     opts = _Options(
         volume_unit=files.volume_unit,
         allow_same_site_demand=files.allow_same_site_demand,
@@ -1702,13 +1710,36 @@ def load_network(cfg: ScenarioConfig) -> NetworkData:
         method=cfg.distances.method,
         distances_file=files.distances is not None,
         config_file=cfg.source.name if cfg.source is not None else "config",
-        fuels=_known_fuels() if files.vehicles is not None else (DEFAULT_FUEL,),
+        fuels=(
+            tuple(fuel_table)
+            if fuel_table is not None
+            else _known_fuels()
+            if files.vehicles is not None
+            else (DEFAULT_FUEL,)
+        ),
         kg_per_unit=cfg.freight.kg_per_unit,
         m3_per_unit=cfg.freight.m3_per_unit,
         check_unit_sizes=True,
     )
     sites_label = sites.file if sites is not None else shown_path(files.sites)
-    return _network(sites, demand, distances, opts, problems, sites_label, vehicles)
+    return _network(sites, demand, distances, opts, problems, sites_label, vehicles, fuel_table)
+
+
+def _fuel_table(path: Path | None, problems: _Problems) -> dict[str, FuelFactor] | None:
+    """The scenario's own fuel emission factors (``inputs.fuels``), or ``None``.
+
+    Its problems (file missing, bad TOML, bad values) join the others.
+    """
+    if path is None:
+        return None
+    from hubnet.emissions import load_fuels
+
+    try:
+        return load_fuels(path)
+    except InputError as err:
+        for p in err.problems:
+            problems.add(shown_path(path), p.row, p.column, p.message)
+        return None
 
 
 def network_from_frames(

@@ -138,3 +138,85 @@ def test_missing_empty_and_broken_fuel_files(tmp_path: Path) -> None:
         load_fuels(_write(tmp_path, "# nothing\n"))
     with pytest.raises(InputError, match="not valid TOML"):
         load_fuels(_write(tmp_path, "[diesel\n"))
+
+
+#: A user's own fuel table: tank-to-wheel from the US EPA greenhouse gas
+#: inventory factor, 10.21 kg CO2 per US gallon of diesel = 2.70 kg per litre
+#: (from memory); well-to-wheel kept at EN 16258:2012 Annex A's 3.24 (from
+#: memory). Named differently from the bundled fuel, so that using the
+#: bundled table by mistake fails on the name.
+USER_FUELS = """
+[diesel_epa]
+ttw_kg_per_l = 2.70
+wtw_kg_per_l = 3.24
+source = "US EPA GHG inventory factor for diesel (from memory); WTW from EN 16258"
+"""
+
+
+def _user_fuel_scenario(tmp_path: Path, fuels_text: str, fuel: str = "diesel_epa") -> Path:
+    import pandas as pd
+    from freightdata import write_inputs
+
+    config = write_inputs(tmp_path / "inputs")
+    folder = config.parent
+    vehicles = pd.read_csv(folder / "vehicles.csv")
+    vehicles["fuel"] = fuel
+    vehicles.to_csv(folder / "vehicles.csv", index=False)
+    (folder / "my_fuels.toml").write_text(fuels_text, encoding="utf-8")
+    text = config.read_text(encoding="utf-8")
+    config.write_text(
+        text.replace(
+            'vehicles = "vehicles.csv"', 'vehicles = "vehicles.csv"\nfuels = "my_fuels.toml"'
+        ),
+        encoding="utf-8",
+    )
+    return config
+
+
+def test_a_users_fuel_table_prices_the_runs(tmp_path: Path) -> None:
+    import json
+
+    from hubnet.api import run_scenario
+
+    config = _user_fuel_scenario(tmp_path, USER_FUELS)
+    sol, out = run_scenario(config, tmp_path / "run")
+    legs = sol.legs
+    assert legs
+    for leg in legs:
+        if not leg.vehicle_km:
+            continue
+        per_km = {"van": 16.0, "artic": 31.0}  # L/100 km, tests/freightdata.py
+        burnt = sum(
+            n * leg.distance_km * per_km[c] / 100 for c, n in leg.dispatches.items() if n > 0
+        )
+        assert leg.co2e_ttw_kg == pytest.approx(burnt * 2.70, rel=1e-9)
+        assert leg.co2e_wtw_kg == pytest.approx(burnt * 3.24, rel=1e-9)
+    summary = json.loads((out / "summary.json").read_text(encoding="utf-8"))
+    assert str(summary["inputs"]["fuels"]).endswith("my_fuels.toml")
+
+
+def test_fuels_outside_the_users_table_are_reported(tmp_path: Path) -> None:
+    from hubnet.api import load_scenario
+
+    # The user's table replaces the bundled one: 'diesel' is then unknown.
+    config = _user_fuel_scenario(tmp_path, USER_FUELS, fuel="diesel")
+    with pytest.raises(InputError) as err:
+        load_scenario(config)
+    text = str(err.value)
+    assert "vehicles.csv" in text and "fuel" in text and "'diesel'" in text
+    assert "diesel_epa" in text  # the names the user's table has
+
+
+def test_a_bad_fuel_table_is_reported_with_the_other_problems(tmp_path: Path) -> None:
+    from hubnet.api import load_scenario
+
+    config = _user_fuel_scenario(tmp_path, USER_FUELS.replace("2.70", "-2.70"))
+    demand = config.parent / "demand.csv"
+    demand.write_text(
+        demand.read_text(encoding="utf-8").replace("MAD,TOL,", "MAD,XXX,", 1), encoding="utf-8"
+    )
+    with pytest.raises(InputError) as err:
+        load_scenario(config)
+    files = {p.file for p in err.value.problems}
+    assert any(f.endswith("my_fuels.toml") for f in files), files
+    assert any(f.endswith("demand.csv") for f in files), files

@@ -276,6 +276,7 @@ def _config_info(config: ScenarioConfig) -> dict[str, Any]:
         info["inputs"].update(
             {
                 "vehicles": inp.vehicles,
+                "fuels": inp.fuels,
                 "kg_per_unit": config.freight.kg_per_unit,
                 "m3_per_unit": config.freight.m3_per_unit,
             }
