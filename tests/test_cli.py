@@ -685,6 +685,86 @@ def test_tiny_time_limit_is_reported_honestly(tmp_path: Path) -> None:
         assert "gap 0.0000 %" not in result.stderr
 
 
+#: Sort capacities (pallets a day) under which only BCN and VAL together can
+#: hold the demo's volume; every other candidate hub gets OTHER_CAPACITY.
+ONE_PAIR_FITS = {"MAD": "1800", "BCN": "5000", "VAL": "5000"}
+OTHER_CAPACITY = "1000"
+
+
+def test_no_plan_when_the_time_limit_runs_out_exits_4_and_writes_nothing(
+    tmp_path: Path, demo_run: tuple[Result, Path]
+) -> None:
+    """A real solve that has no plan when its time limit runs out: exit 4, nothing written.
+
+    The demo with 2 hubs and sort capacities (on the volume a hub's terminals
+    send, its own included: README, ``sort_capacity``) that only one pair of
+    hubs can meet. The terminals send 9,324 pallets a day. BCN and VAL sort
+    5,000 each: 10,000 >= 9,324. MAD sorts 1,800 and each other candidate
+    1,000, so any other pair holds at most 5,000 + 1,800 = 6,800 < 9,324.
+
+    Why no plan exists when a 0.01 s limit runs out:
+
+    - no starting plan: the local search (``hubnet.heuristics.starting_plan``)
+      starts from a greedy pair chosen without the capacities, MAD (the best
+      single hub) and LIS; every pair one swap away keeps MAD or LIS and
+      holds at most 6,800, so it stops with no plan, whatever its budget
+      (measured: None in 0.01 s with a 60 s budget);
+    - sort capacities rule out the path relaxation and the hub-set search,
+      so the flow model goes to HiGHS with what is left of the limit, at
+      least 0.01 s (``hubnet.solve._left``);
+    - HiGHS's first plan on this model comes from rounding its root LP, 0.3 s
+      into its run (measured three times on 2 busy cores: 30 times the 0.01 s
+      it gets); with 0.01 s it stops before the root LP (0 LP iterations).
+
+    The same folder with the config's 60 s limit finds the plan (BCN, VAL)
+    with HiGHS alone, so exit 4 is about time, not a plan that cannot exist
+    (that is exit 3).
+    """
+    folder = demo_folder(tmp_path)
+    header, rows = read_rows(folder / "sites.csv")
+    rows = [
+        {**r, "sort_capacity": ONE_PAIR_FITS.get(r["id"], OTHER_CAPACITY)}
+        if r["sort_capacity"]
+        else r
+        for r in rows
+    ]
+    write_rows(folder / "sites.csv", header, rows)
+    edit_config(
+        folder, 'allocation = "single"', 'allocation = "single"\nhubs = 2\ncapacitated = true'
+    )
+    config = folder / "scenario.toml"
+
+    out = tmp_path / "runs" / "plan"
+    result = invoke("solve", config, "--out", out, "--solver", "highs", "--time-limit", "0.01")
+    assert result.exit_code == EXIT_NO_SOLUTION, result.output
+    # The message names the limit, on the error line, and no traceback.
+    assert "error: no plan found within the time limit of 0.01 s" in result.stderr
+    assert "Traceback" not in result.output
+    # No starting plan: the path described above, not a plan cut short.
+    assert "starting plan" not in result.stderr
+    # Nothing written: no run folder, no temporary folder beside it.
+    assert not out.exists()
+    assert not out.parent.exists(), "a run with no plan created the --out parent folder"
+    assert [p.name for p in tmp_path.iterdir()] == ["scenario"]
+
+    # An earlier run folder, with --force, is left exactly as it was.
+    earlier = tmp_path / "earlier"
+    shutil.copytree(demo_run[1], earlier)
+    before = snapshot(earlier)
+    forced = invoke(
+        "solve", config, "--out", earlier, "--force", "--solver", "highs", "--time-limit", "0.01"
+    )
+    assert forced.exit_code == EXIT_NO_SOLUTION, forced.output
+    assert snapshot(earlier) == before
+
+    # Control: the same scenario with the config's limit (60 s) has a plan.
+    solved = invoke("solve", config, "--out", out, "--solver", "highs")
+    assert solved.exit_code == EXIT_OK, solved.output
+    summary = json.loads((out / "summary.json").read_text(encoding="utf-8"))
+    assert summary["status"] == "optimal"
+    assert sorted(summary["hubs"]) == ["BCN", "VAL"]
+
+
 @pytest.mark.parametrize("command", ["solve", "sweep", "frontier", "report", "map"])
 def test_help_shows_no_type_beside_on_off_switches(command: str) -> None:
     # A switch such as --force takes no value: its help line must not show
