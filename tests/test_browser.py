@@ -469,6 +469,29 @@ def test_demo_map_and_report(browser: Any, demo: Path, tmp_path: Path) -> None:
     screenshot(browser, "report-demo.png", full_page=True)
 
 
+def test_demo_map_boxes_do_not_cover_each_other_on_a_small_screen(browser: Any, demo: Path) -> None:
+    # A laptop window (1024 x 640, common practice, no source): the headline box
+    # (with its caution), the legend, the layer switch and the scale bar each
+    # keep to their own corner (a new user saw the scale bar run into the legend).
+    browser.set_window_size(1024, 640)
+    try:
+        open_page(browser, demo / "map.html")
+        boxes = browser.execute_script(
+            "return ['#hn-headline', '#hn-legend', '.leaflet-control-scale',"
+            " '.leaflet-control-layers'].map(q => {"
+            "  const r = document.querySelector(q).getBoundingClientRect();"
+            "  return [q, r.left, r.top, r.right, r.bottom]; });"
+        )
+    finally:
+        browser.set_window_size(1400, 900)
+    for a in range(len(boxes)):
+        for b in range(a + 1, len(boxes)):
+            qa, la, ta, ra, ba = boxes[a]
+            qb, lb, tb, rb, bb = boxes[b]
+            apart = ra <= lb or rb <= la or ba <= tb or bb <= ta
+            assert apart, (qa, boxes[a][1:], qb, boxes[b][1:])
+
+
 # --------------------------------------------------------------------------
 # A freight run: vehicle classes on the legs
 # --------------------------------------------------------------------------

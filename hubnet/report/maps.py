@@ -176,7 +176,11 @@ body, .leaflet-container { font: 13px/1.35 system-ui, -apple-system, "Segoe UI",
 .hn-box th, .hn-pop th { text-align: left; font-weight: 500; color: #4a4f57;
   padding: 1px 10px 1px 0; vertical-align: top; white-space: nowrap; }
 .hn-box td, .hn-pop td { padding: 1px 0; overflow-wrap: anywhere; }
-.hn-legend { bottom: 44px; left: 10px; font-size: 12px; }
+.hn-legend { bottom: 64px; left: 10px; font-size: 12px; }
+/* Each box keeps to its half of the height (the legend clear of the scale bar),
+   scrolling when the window is too low for it. */
+.hn-head { max-height: calc(50vh - 20px); overflow-y: auto; box-sizing: border-box; }
+.hn-legend { max-height: calc(50vh - 74px); overflow-y: auto; box-sizing: border-box; }
 .hn-caution { color: #4a4f57; font-size: 11px; margin-top: 5px; }
 .hn-legend .hn-k { display: inline-block; width: 38px; text-align: center;
   vertical-align: middle; }
