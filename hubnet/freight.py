@@ -22,24 +22,14 @@ per dispatch the class's fixed cost plus, for each run, km cost + hours on
 the road x hourly cost + relays + a second driver where the drivers' hours
 need one (+ carbon price x CO2e, + value of time x unit-hours, optional).
 
-Time: a run of a class takes the class's driving time (its average
-speed) plus the breaks and relays the drivers'-hours rules impose; a leg
-takes the time of the slowest class the plan runs on it. Where a lane's
-classes differ in speed, a binary per slower class says whether it runs
-there (its dispatches are 0 unless it does), each leg's time is a
-variable at least the fastest class's time plus each running slower
-class's extra hours, and a deadline row for each path that only faster
-classes get there in time bounds the sum of its legs' times (big-M on the
-two allocations and the all-direct escape). Paths late even on the
-fastest classes are ruled out by the allocation rows, as before; a direct
-lane runs only classes on time for the pairs it carries. Unit-hours (the
-value of time, the average-time cap, the least-time objective) count each
-leg at its fastest class plus, per slower class run, its extra hours on
-the leg's volume (z >= volume - most x (1 - runs), exact when at most one
-slower class runs a leg, an overestimate otherwise). A unit's transit
-time is the sum of its legs' times plus the sort time at every hub it
-passes; pairs that cannot make it on any path are named before any
-solving.
+Time: every leg has a timetable time, the time of its slowest allowed
+vehicle class (driving at the class's average speed, plus the breaks and
+relays the drivers'-hours rules impose), so a plan stays on time whichever
+allowed class runs the leg. A unit's transit time is the sum of its legs'
+times plus the sort time at every hub it passes. An OD pair's volume may
+only use paths that reach the destination within its allowance (cut-off
+to delivery deadline); pairs that cannot make it on any path are named
+before any solving.
 
 With one class of payload 1, fractional vehicles, one-way runs, no fixed
 or hourly costs and the classic km cost factors, the model is the single
@@ -119,10 +109,6 @@ class LegTables:
         Per class, the binding payload limit: ``units``, ``kg`` or ``m3``.
     rules
         Name of the drivers'-hours rule set.
-    direct_block
-        ``(C, n, n)``: True where class c may not run the direct lane a-b
-        because it would make an OD pair the lane carries late (set by
-        :func:`_setup`; ``None``: none blocked).
     """
 
     classes: tuple[VehicleClass, ...]
@@ -139,20 +125,10 @@ class LegTables:
     payload: np.ndarray
     binding: tuple[str, ...]
     rules: str
-    direct_block: np.ndarray | None = None
 
     def on_tier(self, c: int, tier: Tier) -> bool:
         """True when class ``c`` may run legs of ``tier``."""
         return tier in self.classes[c].tiers
-
-    def runs_ok(self, c: int, tier: Tier, both: bool) -> np.ndarray:
-        """``(n, n)``: where class ``c`` may run a -> b on ``tier`` (and back, with ``both``)."""
-        if not self.on_tier(c, tier):
-            return np.zeros(self.km.shape, dtype=bool)
-        ok = self.allowed[c] & (self.allowed[c].T if both else True)
-        if tier == "direct" and self.direct_block is not None:
-            ok = ok & ~self.direct_block[c]
-        return np.asarray(ok, dtype=bool)
 
     def lane_classes(self, tier: Tier, a: int, b: int, both: bool) -> list[int]:
         """Classes that may run ``a -> b`` on ``tier`` (and back, when ``both``)."""
@@ -162,27 +138,20 @@ class LegTables:
             if self.on_tier(c, tier)
             and self.allowed[c, a, b]
             and (not both or self.allowed[c, b, a])
-            and not (
-                tier == "direct"
-                and self.direct_block is not None
-                and (self.direct_block[c, a, b] or (both and self.direct_block[c, b, a]))
-            )
         ]
 
-    def timetable(self, tier: Tier, both: bool, *, fastest: bool = False) -> np.ndarray:
-        """``(n, n)`` hours of each directed leg on ``tier``: its slowest class, or fastest.
+    def timetable(self, tier: Tier, both: bool) -> np.ndarray:
+        """``(n, n)`` timetable hours of each directed leg on ``tier``: its slowest class.
 
-        A leg's time in a plan is that of the slowest class run on it; the
-        slowest class that may run it bounds that time from above, the
-        fastest from below. ``inf`` where no class may run the leg.
+        ``inf`` where no class may run the leg.
         """
         n = self.km.shape[0]
-        out = np.full((n, n), np.inf if fastest else -np.inf)
-        pick = np.minimum if fastest else np.maximum
+        out = np.full((n, n), -np.inf)
         for c in range(len(self.classes)):
-            ok = self.runs_ok(c, tier, both)
-            if ok.any():
-                out = np.where(ok, pick(out, self.transit_h[c]), out)
+            if not self.on_tier(c, tier):
+                continue
+            ok = self.allowed[c] & (self.allowed[c].T if both else True)
+            out = np.where(ok, np.maximum(out, self.transit_h[c]), out)
         out[out == -np.inf] = np.inf
         np.fill_diagonal(out, 0.0)
         return out
@@ -335,16 +304,7 @@ class FreightModel(HubModel):
 
 @dataclass(frozen=True, eq=False)
 class _Setup:
-    """Everything the model and the plan evaluation share.
-
-    Leg times, ``(n, n)`` hours: ``feeder_t`` and ``trunk_t`` are each leg's
-    fastest class (no plan is faster: what rules paths out),
-    ``feeder_slow`` and ``trunk_slow`` its slowest (a plan on time with
-    those is on time whatever classes it runs: what the starting plan
-    keeps to); ``direct_t`` the slowest class left on the lane, every one
-    of which is on time (:func:`_late_direct_classes`), ``direct_fast`` the
-    fastest.
-    """
+    """Everything the model and the plan evaluation share."""
 
     w: np.ndarray
     cand: list[int]
@@ -354,9 +314,6 @@ class _Setup:
     feeder_t: np.ndarray
     trunk_t: np.ndarray
     direct_t: np.ndarray
-    feeder_slow: np.ndarray
-    trunk_slow: np.ndarray
-    direct_fast: np.ndarray
     direct_pairs: frozenset[tuple[int, int]]
     feeder_ok: np.ndarray  # (n, n) bool: terminal i may be allocated to hub k
     trunk_ok: np.ndarray  # (n, n) bool
@@ -367,23 +324,9 @@ def _direction_ok(tables: LegTables, tier: Tier, round_trips: bool) -> np.ndarra
     n = tables.km.shape[0]
     ok = np.zeros((n, n), dtype=bool)
     for c in range(len(tables.classes)):
-        ok |= tables.runs_ok(c, tier, round_trips)
+        if tables.on_tier(c, tier):
+            ok |= tables.allowed[c] & (tables.allowed[c].T if round_trips else True)
     return ok
-
-
-def _late_direct_classes(
-    tables: LegTables, w: np.ndarray, allow: np.ndarray, round_trips: bool
-) -> np.ndarray:
-    """``(C, n, n)``: True where class c would make an OD pair on the direct lane a-b late.
-
-    A direct lane carries only its own OD pairs (a -> b, and b -> a on a
-    round trip), so a class too slow for one of them is simply not run
-    there: whichever class runs the lane is then on time.
-    """
-    late = (tables.transit_h > allow[None] + TIME_TOLERANCE_H) & (w[None] > 0)
-    if round_trips:
-        late = late | np.transpose(late, (0, 2, 1))
-    return np.asarray(late, dtype=bool)
 
 
 def _setup(
@@ -399,13 +342,11 @@ def _setup(
                 "the freight model plans single allocation (each terminal works with one hub)",
             )
         )
-    w = data.flow_matrix()
-    allow = allowances(data, fp)
-    both = fp.round_trips
     tables = leg_tables(data, distances, fp)
-    tables = dataclasses.replace(tables, direct_block=_late_direct_classes(tables, w, allow, both))
+    w = data.flow_matrix()
     n = data.n
     cand = [k for k, s in enumerate(data.sites) if s.is_candidate]
+    both = fp.round_trips
     feeder_ok = _direction_ok(tables, "feeder", both)
     if not both:
         feeder_ok &= feeder_ok.T
@@ -428,47 +369,36 @@ def _setup(
         w=w,
         cand=cand,
         tables=tables,
-        allow=allow,
+        allow=allowances(data, fp),
         sort=sort_hours(data, fp),
-        feeder_t=tables.timetable("feeder", both, fastest=True),
-        trunk_t=tables.timetable("trunk", both, fastest=True),
+        feeder_t=tables.timetable("feeder", both),
+        trunk_t=tables.timetable("trunk", both),
         direct_t=tables.timetable("direct", both),
-        feeder_slow=tables.timetable("feeder", both),
-        trunk_slow=tables.timetable("trunk", both),
-        direct_fast=tables.timetable("direct", both, fastest=True),
         direct_pairs=frozenset(pairs),
         feeder_ok=feeder_ok,
         trunk_ok=trunk_ok,
     )
 
 
-def path_hours(st: _Setup, i: int, k: int, m: int, j: int, *, slow: bool = False) -> float:
-    """Transit hours of ``i -> hub k -> hub m -> j`` (``k == m``: one hub).
-
-    On each leg's fastest class, or with ``slow`` its slowest (see :class:`_Setup`).
-    """
-    feeder, trunk = (st.feeder_slow, st.trunk_slow) if slow else (st.feeder_t, st.trunk_t)
-    t = feeder[i, k] + st.sort[k] + feeder[m, j]
+def path_hours(st: _Setup, i: int, k: int, m: int, j: int) -> float:
+    """Transit hours of ``i -> hub k -> hub m -> j`` (``k == m``: one hub)."""
+    t = st.feeder_t[i, k] + st.sort[k] + st.feeder_t[m, j]
     if k != m:
-        t += trunk[k, m] + st.sort[m]
+        t += st.trunk_t[k, m] + st.sort[m]
     return float(t)
 
 
-def _path_matrix(st: _Setup, i: int, j: int, *, slow: bool = False) -> np.ndarray:
-    """``(|cand|, |cand|)`` transit hours of OD (i, j) over every hub pair (inf if impossible).
-
-    On each leg's fastest class, or with ``slow`` its slowest (see :class:`_Setup`).
-    """
+def _path_matrix(st: _Setup, i: int, j: int) -> np.ndarray:
+    """``(|cand|, |cand|)`` transit hours of OD (i, j) over every hub pair (inf if impossible)."""
     c = np.asarray(st.cand)
-    feeder, trunk = (st.feeder_slow, st.trunk_slow) if slow else (st.feeder_t, st.trunk_t)
     t = (
-        feeder[i, c][:, None]
+        st.feeder_t[i, c][:, None]
         + st.sort[c][:, None]
-        + trunk[np.ix_(c, c)]
+        + st.trunk_t[np.ix_(c, c)]
         + st.sort[c][None, :]
-        + feeder[c, j][None, :]
+        + st.feeder_t[c, j][None, :]
     )
-    same = feeder[i, c] + st.sort[c] + feeder[c, j]
+    same = st.feeder_t[i, c] + st.sort[c] + st.feeder_t[c, j]
     t[np.diag_indices_from(t)] = same
     t = np.where(st.feeder_ok[i, c][:, None] & st.feeder_ok[j, c][None, :], t, np.inf)
     trunk = st.trunk_ok[np.ix_(c, c)].copy()
@@ -642,102 +572,6 @@ def _var(
     return prob.add_variable(name, low, up, cat=cat)
 
 
-#: A directed leg as the model knows it: tier, from, to, and for a feeder
-#: whether it runs into the hub (collecting; else delivering). Trunks: True.
-_Leg = tuple[str, int, int, bool]
-
-
-class _SlowClasses:
-    """Where a lane's classes differ in speed: "class c runs here" and each leg's time.
-
-    Made on demand for the legs a deadline row or the unit-hours need. For
-    a slower class c on a lane, a binary u with ``dispatches <= most x u``
-    (most: whole vehicles of c for the lane's largest possible volume); for
-    a directed leg, ``time >= fastest + (time of c - fastest) x u`` for each
-    slower c, so the time is the slowest class run (at least the fastest).
-    """
-
-    def __init__(
-        self,
-        prob: pulp.LpProblem,
-        st: _Setup,
-        fp: FreightParams,
-        vehicles: Mapping[LaneKey, pulp.LpVariable],
-    ) -> None:
-        self.prob, self.st, self.fp, self.vehicles = prob, st, fp, vehicles
-        w = st.w
-        self.out_vol, self.in_vol, self.total = w.sum(axis=1), w.sum(axis=0), float(w.sum())
-        self.runs: dict[LaneKey, pulp.LpVariable] = {}
-        self.times: dict[_Leg, pulp.LpVariable | None] = {}
-
-    def _lane(self, leg: _Leg) -> tuple[str, int, int, int]:
-        """The vehicles' key (tier, a, b, way) of the run of ``leg``."""
-        tier, s, t, into = leg
-        if tier == "feeder":
-            # feeder lanes are keyed (terminal, hub); way 1 = out of the hub (one-way runs)
-            return (tier, s, t, 0) if into else (tier, t, s, 0 if self.fp.round_trips else 1)
-        if self.fp.round_trips:
-            return (tier, min(s, t), max(s, t), 0)
-        return (tier, s, t, 0)
-
-    def _most(self, key: tuple[str, int, int, int]) -> float:
-        """Largest volume the lane's runs may carry in one direction, units per day."""
-        tier, a, b, way = key
-        if tier == "direct":
-            return float(max(self.st.w[a, b], self.st.w[b, a]))
-        if tier != "feeder":
-            return self.total
-        if self.fp.round_trips:
-            return float(max(self.out_vol[a], self.in_vol[a]))
-        return float(self.in_vol[a] if way == 1 else self.out_vol[a])
-
-    def _slower(self, leg: _Leg) -> tuple[float, list[tuple[int, float]]]:
-        """The leg's fastest class time (h) and each slower class with its extra hours."""
-        tier, s, t, _ = leg
-        lane = self._lane(leg)
-        times = {
-            c: float(self.st.tables.transit_h[c, s, t])
-            for c in range(len(self.st.tables.classes))
-            if (*lane[:3], c, lane[3]) in self.vehicles
-        }
-        if not times:
-            return math.inf, []
-        fast = min(times.values())
-        return fast, [(c, h - fast) for c, h in times.items() if h - fast > TIME_TOLERANCE_H]
-
-    def _runs(self, leg: _Leg, c: int) -> pulp.LpVariable:
-        tier, a, b, way = self._lane(leg)
-        key: LaneKey = (tier, a, b, c, way)
-        u = self.runs.get(key)
-        if u is None:
-            u = _var(self.prob, f"runs_{tier}_{a}_{b}_{c}_{way}", 0, 1, pulp.LpBinary)
-            self.runs[key] = u
-            most = math.ceil(self._most((tier, a, b, way)) / float(self.st.tables.payload[c]))
-            self.prob += (
-                self.vehicles[key] - float(max(most, 1)) * u <= 0,
-                f"runs_{tier}_{a}_{b}_{c}_{way}",
-            )
-        return u
-
-    def leg_time(self, leg: _Leg) -> pulp.LpVariable | None:
-        """The leg's time as a variable (h), or ``None`` when every class takes the same."""
-        if leg in self.times:
-            return self.times[leg]
-        fast, slower = self._slower(leg)
-        tau = None
-        if slower:
-            name = f"time_{leg[0]}_{leg[1]}_{leg[2]}_{int(leg[3])}"
-            tau = _var(self.prob, name, fast, None, pulp.LpContinuous)
-            for c, extra in slower:
-                self.prob += tau - extra * self._runs(leg, c) >= fast, f"{name}_{c}"
-        self.times[leg] = tau
-        return tau
-
-    def extras(self, leg: _Leg) -> list[tuple[pulp.LpVariable, float]]:
-        """Each slower class's "runs here" binary on the leg, with its extra hours."""
-        return [(self._runs(leg, c), extra) for c, extra in self._slower(leg)[1]]
-
-
 def build_freight_model(
     data: NetworkData,
     st: _Setup,
@@ -877,7 +711,7 @@ def build_freight_model(
         for v, a in g.items():
             hours_terms[v] += a * float(st.feeder_t[l_, j])
     for (i, j), dv in direct.items():
-        hours_terms[dv] += float(w[i, j] * st.direct_fast[i, j])
+        hours_terms[dv] += float(w[i, j] * st.direct_t[i, j])
 
     # trunk flows per origin, with at most one trunk leg per unit
     trunk_pairs = [(k, m) for k in cand for m in cand if k != m and st.trunk_ok[k, m]]
@@ -1066,45 +900,13 @@ def build_freight_model(
                     (f"one_vehicle_direct_{i}_{j}"),
                 )
 
-    # A leg's time is that of the slowest class run on it (see _Setup). Where
-    # a lane's classes differ in speed, a binary says whether a slower class
-    # runs there and a variable holds each direction's time.
-    slow = _SlowClasses(prob, st, fp, vehicles)
-    hours_matter = (
-        fp.minimise == "transit" or bool(fp.value_of_time) or fp.max_transit_h is not None
-    )
-    if hours_matter:
-        # Unit-hours above the fastest class's on every leg a slower class runs:
-        # z >= volume - (most volume) x (1 - the slower class runs), z >= 0.
-        on_legs: list[tuple[_Leg, dict[pulp.LpVariable, float], float]] = []
-        for (i, k), g in g_out.items():
-            if i != k:
-                on_legs.append((("feeder", i, k, True), g, float(out_vol[i])))
-        for (j, k), g in g_in.items():
-            if j != k:
-                on_legs.append((("feeder", k, j, False), g, float(in_vol[j])))
-        for (k, m), flow in trunk_flow.items():
-            on_legs.append((("trunk", k, m, True), {v: 1.0 for v in flow}, float(w.sum())))
-        for (i, j), dv in direct.items():
-            on_legs.append((("direct", i, j, True), {dv: float(w[i, j])}, float(w[i, j])))
-        for leg, volume, most in on_legs:
-            for u, extra in slow.extras(leg):
-                z = _var(prob, f"slow_h_{u.name}_{leg[1]}_{leg[2]}", 0, None, pulp.LpContinuous)
-                over: dict[pulp.LpVariable, float] = defaultdict(float, {z: 1.0, u: -most})
-                for v, coef in volume.items():
-                    over[v] -= coef
-                prob += expr(over) >= -most, f"slow_h_{u.name}_{leg[1]}_{leg[2]}"
-                hours_terms[z] += extra
-
     # service deadlines
     rows = 0
     all_direct: dict[tuple[int, int], pulp.LpVariable] = {}
     odr, odc = np.nonzero(w)
     for i, j in zip(odr.tolist(), odc.tolist(), strict=True):
         late = late_paths(st, i, j)
-        maybe = _path_matrix(st, i, j, slow=True) > st.allow[i, j] + TIME_TOLERANCE_H
-        maybe &= ~late  # on time only if the legs run fast enough classes
-        if not late.any() and not maybe.any():
+        if not late.any():
             continue
         escape = None
         if (i, j) in direct and _direct_on_time(st, i, j):
@@ -1130,32 +932,6 @@ def build_freight_model(
             if escape is not None:
                 terms[escape] -= 1.0
             prob += expr(terms) <= rhs, f"deadline_{i}_{j}_{k}"
-            rows += 1
-        for pk, pm in zip(*np.nonzero(maybe), strict=True):
-            k, m = cand[int(pk)], cand[int(pm)]
-            if (i, k) not in x or (j, m) not in x or (i == j and k != m):
-                continue
-            # On the plan's classes: sum of leg times + sorts <= allowance,
-            # when i works with k and j with m and the pair does not go direct.
-            legs: list[_Leg] = [("feeder", i, k, True)] if i != k else []
-            legs += [("trunk", k, m, True)] if k != m else []
-            legs += [("feeder", m, j, False)] if m != j else []
-            fixed = float(st.sort[k] + (st.sort[m] if k != m else 0.0))
-            big = path_hours(st, i, k, m, j, slow=True) - float(st.allow[i, j])
-            terms = defaultdict(float)
-            for leg in legs:
-                tau = slow.leg_time(leg)
-                if tau is None:
-                    table = st.feeder_t if leg[0] == "feeder" else st.trunk_t
-                    fixed += float(table[leg[1], leg[2]])
-                else:
-                    terms[tau] += 1.0
-            terms[x[i, k]] += big
-            terms[x[j, m]] += big
-            if escape is not None:
-                terms[escape] -= big
-            rhs = float(st.allow[i, j]) + TIME_TOLERANCE_H - fixed + 2.0 * big
-            prob += expr(terms) <= rhs, f"deadline_{i}_{j}_{k}_{m}"
             rows += 1
 
     if fp.value_of_time:
@@ -1302,16 +1078,6 @@ def evaluate_freight(
     # tolerance (an x of 1e-6 times a terminal's volume) a direct share can
     # fall short of 1 by a speck that no vehicle covers; such specks go direct.
     speck = 1e-5 * max(1.0, float(w.sum()))
-    runs = _runs(plan, fp, tables)
-    fastest = {"feeder": st.feeder_t, "trunk": st.trunk_t, "direct": st.direct_fast}
-
-    def leg_hours(tier: str, s: int, t: int) -> float:
-        """Hours of the run s -> t: its slowest class run (the fastest allowed if none)."""
-        used = [c for c, (n, _) in runs.get((tier, s, t), {}).items() if n > 1e-9]
-        if not used:
-            return float(fastest[tier][s, t])
-        return float(max(tables.transit_h[c, s, t] for c in used))
-
     rows, cols = np.nonzero(w)
     for i, j in zip(rows.tolist(), cols.tolist(), strict=True):
         vol = float(w[i, j])
@@ -1319,7 +1085,7 @@ def evaluate_freight(
         dv = vol if 0.0 < vol - dv <= speck and dv > 0.0 else dv
         if dv > 1e-9:
             flows["direct", i, j] += dv
-            t = leg_hours("direct", i, j)
+            t = float(st.direct_t[i, j])
             time_by_tier["direct"] += dv * t
             route_parts.append((i, j, dv, [("direct", i, j)], t, ()))
         hv = vol - dv
@@ -1329,16 +1095,16 @@ def evaluate_freight(
         legs_used: list[tuple[str, int, int]] = []
         if i != k:
             legs_used.append(("feeder", i, k))
+            time_by_tier["feeder"] += hv * float(st.feeder_t[i, k])
         if k != m:
             legs_used.append(("trunk", k, m))
+            time_by_tier["trunk"] += hv * float(st.trunk_t[k, m])
         if m != j:
             legs_used.append(("feeder", m, j))
-        t = float(st.sort[k] + (st.sort[m] if m != k else 0.0))
+            time_by_tier["feeder"] += hv * float(st.feeder_t[m, j])
         for key in legs_used:
             flows[key] += hv
-            hours = leg_hours(*key)
-            time_by_tier[key[0]] += hv * hours
-            t += hours
+        t = path_hours(st, i, k, m, j)
         time_by_tier["sort"] += hv * float(st.sort[k] + (st.sort[m] if m != k else 0.0))
         handling_cost += hv * (handling[k] + (handling[m] if m != k else 0.0))
         through[k] += hv
@@ -1347,6 +1113,7 @@ def evaluate_freight(
             through[m] += hv
         route_parts.append((i, j, hv, legs_used, t, (k,) if k == m else (k, m)))
 
+    runs = _runs(plan, fp, tables)
     tier_cost: dict[str, float] = defaultdict(float)
     carbon_cost = 0.0
     basis = tables.co2e_wtw_kg if fp.emissions_basis == "wtw" else tables.co2e_ttw_kg
@@ -1354,6 +1121,7 @@ def evaluate_freight(
         c: {"runs": 0.0, "vehicle_km": 0.0, "co2e_ttw_kg": 0.0, "co2e_wtw_kg": 0.0}
         for c in range(len(tables.classes))
     }
+    timetables = {"feeder": st.feeder_t, "trunk": st.trunk_t, "direct": st.direct_t}
     legs: list[Leg] = []
     problems: list[str] = []
     order = sorted(runs.items(), key=lambda kv: (TIERS.index(kv[0][0]), kv[0][1:]))
@@ -1394,7 +1162,7 @@ def evaluate_freight(
                 dispatches={tables.classes[c].id: n for c, n in counts.items()},
                 capacity=capacity,
                 drive_h=float(max(tables.drive_h[c, s, t] for c in used)),
-                transit_h=leg_hours(tier, s, t),
+                transit_h=float(timetables[tier][s, t]),
                 relays=int(max(tables.relays[c, s, t] for c in used)),
                 drivers=int(max(tables.drivers[c, s, t] for c in used)),
                 vehicle_km=float(sum(n * tables.km[s, t] for n in counts.values())),
@@ -1959,7 +1727,7 @@ def _late_count(st: _Setup, assign: np.ndarray, direct_ok: np.ndarray) -> np.nda
     for i, j in zip(rows.tolist(), cols.tolist(), strict=True):
         if direct_ok[i, j]:
             continue
-        t = path_hours(st, i, int(assign[i]), int(assign[j]), j, slow=True)
+        t = path_hours(st, i, int(assign[i]), int(assign[j]), j)
         k, m = int(assign[i]), int(assign[j])
         if k != m and not st.trunk_ok[k, m]:
             t = math.inf
@@ -2090,7 +1858,7 @@ def starting_freight_plan(
     shares: dict[tuple[int, int], float] = {}
     for i, j in st.direct_pairs:
         k, m = int(assign[i]), int(assign[j])
-        if path_hours(st, i, k, m, j, slow=True) > st.allow[i, j] + TIME_TOLERANCE_H:
+        if path_hours(st, i, k, m, j) > st.allow[i, j] + TIME_TOLERANCE_H:
             shares[i, j] = 1.0
     # flows on legs, then vehicles; lanes[key] = [volume there, volume back]
     lanes: dict[tuple[str, int, int], list[float]] = defaultdict(lambda: [0.0, 0.0])
