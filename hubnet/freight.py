@@ -140,18 +140,20 @@ class LegTables:
             and (not both or self.allowed[c, b, a])
         ]
 
-    def timetable(self, tier: Tier, both: bool) -> np.ndarray:
+    def timetable(self, tier: Tier, both: bool, *, fastest: bool = False) -> np.ndarray:
         """``(n, n)`` timetable hours of each directed leg on ``tier``: its slowest class.
 
-        ``inf`` where no class may run the leg.
+        With ``fastest``, its fastest class instead (what the leg would take
+        if only that class ran it). ``inf`` where no class may run the leg.
         """
         n = self.km.shape[0]
-        out = np.full((n, n), -np.inf)
+        out = np.full((n, n), np.inf if fastest else -np.inf)
+        pick = np.minimum if fastest else np.maximum
         for c in range(len(self.classes)):
             if not self.on_tier(c, tier):
                 continue
             ok = self.allowed[c] & (self.allowed[c].T if both else True)
-            out = np.where(ok, np.maximum(out, self.transit_h[c]), out)
+            out = np.where(ok, pick(out, self.transit_h[c]), out)
         out[out == -np.inf] = np.inf
         np.fill_diagonal(out, 0.0)
         return out
@@ -317,6 +319,8 @@ class _Setup:
     direct_pairs: frozenset[tuple[int, int]]
     feeder_ok: np.ndarray  # (n, n) bool: terminal i may be allocated to hub k
     trunk_ok: np.ndarray  # (n, n) bool
+    # each leg's fastest class's hours, (n, n): only to explain a missed deadline
+    fastest_t: dict[str, np.ndarray] = field(default_factory=dict)
     late: dict[tuple[int, int], np.ndarray] = field(default_factory=dict)
 
 
@@ -377,6 +381,10 @@ def _setup(
         direct_pairs=frozenset(pairs),
         feeder_ok=feeder_ok,
         trunk_ok=trunk_ok,
+        fastest_t={
+            tier: tables.timetable(tier, both, fastest=True)
+            for tier in ("feeder", "trunk", "direct")
+        },
     )
 
 
@@ -485,6 +493,23 @@ def restrict_allocations(data: NetworkData, st: _Setup) -> int:
     return removed
 
 
+def _fastest_class_hours(st: _Setup, i: int, j: int) -> float:
+    """Hours of OD (i, j)'s quickest path were every leg run by its fastest class."""
+    if not st.fastest_t:
+        return math.inf
+    quick = dataclasses.replace(
+        st,
+        feeder_t=st.fastest_t["feeder"],
+        trunk_t=st.fastest_t["trunk"],
+        direct_t=st.fastest_t["direct"],
+        late={},
+    )
+    paths = _path_matrix(quick, i, j)
+    best = float(paths.min()) if paths.size else math.inf
+    direct = quick.direct_t[i, j] if (i, j) in st.direct_pairs else math.inf
+    return min(best, float(direct))
+
+
 def unreachable_pairs(data: NetworkData, st: _Setup, limit: int = 20) -> list[str]:
     """Sentences naming OD pairs that miss their deadline even on their fastest path."""
     ids = data.ids
@@ -516,7 +541,15 @@ def unreachable_pairs(data: NetworkData, st: _Setup, limit: int = 20) -> list[st
                 + (f", trunk {st.trunk_t[k, m]:.1f} h, sort {st.sort[m]:.1f} h" if k != m else "")
                 + f", feeder {st.feeder_t[m, j]:.1f} h)"
             )
-        out.append(f"{ids[i]} -> {ids[j]}: {why}, but {st.allow[i, j]:.1f} h are allowed")
+        sentence = f"{ids[i]} -> {ids[j]}: {why}, but {st.allow[i, j]:.1f} h are allowed"
+        quick = _fastest_class_hours(st, i, j)
+        if quick <= st.allow[i, j] + TIME_TOLERANCE_H:
+            sentence += (
+                f" (each leg is timed at the slowest class allowed on its tier; with the "
+                f"fastest class on every leg it would take {quick:.1f} h: keep the slower "
+                "classes off the tiers it uses, in the vehicles table's tiers column)"
+            )
+        out.append(sentence)
     if late > len(out):
         out.append(f"... and {late - len(out)} more OD pairs")
     return out
