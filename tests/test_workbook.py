@@ -93,6 +93,24 @@ def test_headers_name_units_frozen_and_readable(run_dir: Path) -> None:
             assert (table, column) in documented
 
 
+def test_volumes_show_no_bare_decimal_point(run_dir: Path) -> None:
+    # Excel renders "#,##0.##" as "5,734." for a whole number (its number-format
+    # rules: optional digits drop, the point stays); whole volumes get "#,##0",
+    # the others two decimals.
+    ws = load_workbook(run_dir / "tables.xlsx")["legs"]
+    headers = [c.value for c in ws[1]]
+    col = headers.index("volume_per_day [pallets/day]") + 1
+    cells = [row[0] for row in ws.iter_rows(min_row=2, min_col=col, max_col=col)]
+    assert cells
+    for cell in cells:
+        assert "#,##0.##" not in cell.number_format
+        whole = float(cell.value).is_integer()
+        assert cell.number_format == ("#,##0" if whole else "#,##0.00"), (
+            cell.value,
+            cell.number_format,
+        )
+
+
 def test_summary_sheet_matches_summary_json(run_dir: Path) -> None:
     summary = json.loads((run_dir / "summary.json").read_text())
     ws = load_workbook(run_dir / "tables.xlsx")["summary"]

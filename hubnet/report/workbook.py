@@ -62,7 +62,10 @@ SITES_COLUMNS: dict[str, str] = {
 }
 
 _MONEY = "#,##0.00"
-_VOLUME = "#,##0.##"
+#: Volumes: "#,##0.##" would leave a bare decimal point after whole numbers
+#: in Excel ("5,734."), so whole volumes get _WHOLE and the others two decimals.
+_VOLUME = "#,##0.00"
+_WHOLE = "#,##0"
 _KM = "#,##0.0"
 _FRACTION = "0.0%"
 _COUNT = "0"
@@ -276,7 +279,8 @@ def workbook_bytes(
             longest = widths[j - 1]
             for (cell,) in ws.iter_rows(min_row=2, min_col=j, max_col=j):
                 if fmt is not None and isinstance(cell.value, int | float):
-                    cell.number_format = fmt
+                    whole = fmt == _VOLUME and float(cell.value).is_integer()
+                    cell.number_format = _WHOLE if whole else fmt
                     longest = max(longest, len(f"{cell.value:,.2f}"))
                 elif cell.value is not None:
                     longest = max(longest, len(str(cell.value)))
