@@ -92,6 +92,9 @@ def test_demo_solve_writes_the_run_folder(demo_run: tuple[Result, Path]) -> None
     summary = json.loads((out / "summary.json").read_text(encoding="utf-8"))
     assert summary["status"] == "optimal"
     assert summary["proven_optimal"] is True
+    # the inputs as the checks name them: no '..' step from the config's folder
+    sites = Path(summary["inputs"]["sites"])
+    assert ".." not in sites.parts and sites.parts[-3:] == ("demo_regions", "iberia", "sites.csv")
     assert summary["gap"] is not None and summary["gap"] <= 1e-6
     assert summary["best_bound"] <= summary["objective"] * (1 + 1e-6)
     assert summary["costs"]["total"] == pytest.approx(summary["objective"], rel=1e-9)

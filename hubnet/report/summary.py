@@ -16,7 +16,7 @@ import json
 import math
 import sys
 from collections.abc import Mapping
-from pathlib import PurePath
+from pathlib import Path, PurePath
 from typing import Any
 
 import numpy as np
@@ -88,6 +88,17 @@ STANDING_CAUTIONS: tuple[str, ...] = (
     "not check weights or dimensions. Confirm that every leg and vehicle of the plan "
     "complies with your local regulations before acting on it.",
 )
+
+
+def _shown(path: PurePath | None) -> str | None:
+    """An input file as the checks name it (:func:`hubnet.inputs.shown_path`).
+
+    Under the working folder relative and without ``..`` steps
+    (``demo_regions/iberia/sites.csv``), else absolute.
+    """
+    from hubnet.inputs import shown_path
+
+    return None if path is None else shown_path(Path(path))
 
 
 def hubnet_version() -> str:
@@ -261,9 +272,9 @@ def _config_info(config: ScenarioConfig) -> dict[str, Any]:
         },
         "distances": {"method": dist.method, "circuity": dist.circuity},
         "inputs": {
-            "sites": inp.sites,
-            "demand": inp.demand,
-            "distances": inp.distances,
+            "sites": _shown(inp.sites),
+            "demand": _shown(inp.demand),
+            "distances": _shown(inp.distances),
             "sheet": inp.sheet,
         },
     }
@@ -275,8 +286,8 @@ def _config_info(config: ScenarioConfig) -> dict[str, Any]:
         del info["model"]["cost_per_unit_km"]
         info["inputs"].update(
             {
-                "vehicles": inp.vehicles,
-                "fuels": inp.fuels,
+                "vehicles": _shown(inp.vehicles),
+                "fuels": _shown(inp.fuels),
                 "kg_per_unit": config.freight.kg_per_unit,
                 "m3_per_unit": config.freight.m3_per_unit,
             }
