@@ -1479,14 +1479,15 @@ def solve_freight(
         # its share of the limit (16 terminals, 30 s a point: the fastest end of
         # a frontier was lost that way, and with it every point between).
         first_cost = _priced_start(data, st, params, fp, first)
-        start_cost = _priced_start(data, st, params, fp, start)
-        if first_cost is not None and (start_cost is None or first_cost < start_cost):
-            start, kept = first, "least-transit plan"
+        fallback = _priced_start(data, st, params, fp, start)
+        if first_cost is not None and (fallback is None or first_cost < fallback):
+            start, kept, fallback = first, "least-transit plan", first_cost
+    else:
+        fallback = _priced_start(data, st, params, fp, start)
     # The starting plan is not handed to the solver as a MIP start: HiGHS 1.16
     # and CBC 2.10 were both seen to stop at a given start and call it optimal
     # with a wrong objective (tests/test_freight.py). It is kept instead, and
     # returned when the solver ends with nothing better.
-    fallback = _priced_start(data, st, params, fp, start)
     if fallback is not None:
         say(f"{kept} costs {fallback:,.2f}; kept in case the solver finds nothing better")
     # With a time limit and a starting plan that meets every constraint, the
