@@ -493,6 +493,18 @@ def restrict_allocations(data: NetworkData, st: _Setup) -> int:
     return removed
 
 
+def _quickest(st: _Setup, i: int, j: int) -> tuple[np.ndarray, float, float]:
+    """OD (i, j)'s hours over every hub pair, the best of them, and direct.
+
+    The first is :func:`_path_matrix`; the direct lane's hours are ``inf``
+    where the pair may not go direct.
+    """
+    paths = _path_matrix(st, i, j)
+    best = float(paths.min()) if paths.size else math.inf
+    direct = float(st.direct_t[i, j]) if (i, j) in st.direct_pairs else math.inf
+    return paths, best, direct
+
+
 def _fastest_class_hours(st: _Setup, i: int, j: int) -> float:
     """Hours of OD (i, j)'s quickest path were every leg run by its fastest class."""
     if not st.fastest_t:
@@ -504,10 +516,8 @@ def _fastest_class_hours(st: _Setup, i: int, j: int) -> float:
         direct_t=st.fastest_t["direct"],
         late={},
     )
-    paths = _path_matrix(quick, i, j)
-    best = float(paths.min()) if paths.size else math.inf
-    direct = quick.direct_t[i, j] if (i, j) in st.direct_pairs else math.inf
-    return min(best, float(direct))
+    _, best, direct = _quickest(quick, i, j)
+    return min(best, direct)
 
 
 def unreachable_pairs(data: NetworkData, st: _Setup, limit: int = 20) -> list[str]:
@@ -517,10 +527,8 @@ def unreachable_pairs(data: NetworkData, st: _Setup, limit: int = 20) -> list[st
     rows, cols = np.nonzero(st.w)
     late = 0
     for i, j in zip(rows.tolist(), cols.tolist(), strict=True):
-        paths = _path_matrix(st, i, j)
+        paths, best, direct = _quickest(st, i, j)
         st.late.setdefault((i, j), paths > st.allow[i, j] + TIME_TOLERANCE_H)  # see late_paths
-        best = float(paths.min()) if paths.size else math.inf
-        direct = st.direct_t[i, j] if (i, j) in st.direct_pairs else math.inf
         fastest = min(best, direct)
         if fastest <= st.allow[i, j] + TIME_TOLERANCE_H:
             continue
