@@ -22,14 +22,19 @@ per dispatch the class's fixed cost plus, for each run, km cost + hours on
 the road x hourly cost + relays + a second driver where the drivers' hours
 need one (+ carbon price x CO2e, + value of time x unit-hours, optional).
 
-Time: every leg has a timetable time, the time of its slowest allowed
-vehicle class (driving at the class's average speed, plus the breaks and
-relays the drivers'-hours rules impose), so a plan stays on time whichever
-allowed class runs the leg. A unit's transit time is the sum of its legs'
-times plus the sort time at every hub it passes. An OD pair's volume may
-only use paths that reach the destination within its allowance (cut-off
-to delivery deadline); pairs that cannot make it on any path are named
-before any solving.
+Time: a run takes its class's driving time (the class's average speed)
+plus the breaks and relays the drivers'-hours rules impose, and a leg
+takes the time of the slowest class the plan runs on it. Where a lane's
+classes differ in hours they make speed levels (each: the classes within
+some hours in each direction, from the quickest class alone to all), and
+a binary per level says which one the lane uses; a class runs only at
+levels that include it. A unit's transit time is the sum of its legs' times plus the sort
+time at every hub it passes. An OD pair's volume may only use paths that
+reach the destination within its allowance (cut-off to delivery
+deadline): paths late even on their legs' fastest classes are ruled out
+on the allocations, and a path late only at some levels gets a row that
+forbids those levels together with the two allocations. Pairs that
+cannot make it on any path are named before any solving.
 
 With one class of payload 1, fractional vehicles, one-way runs, no fixed
 or hourly costs and the classic km cost factors, the model is the single
@@ -40,6 +45,7 @@ the classic optima (tests/test_freight.py).
 from __future__ import annotations
 
 import dataclasses
+import itertools
 import math
 import time
 from collections import defaultdict
@@ -306,7 +312,14 @@ class FreightModel(HubModel):
 
 @dataclass(frozen=True, eq=False)
 class _Setup:
-    """Everything the model and the plan evaluation share."""
+    """Everything the model and the plan evaluation share.
+
+    ``feeder_t``, ``trunk_t`` and ``direct_t`` are ``(n, n)`` hours of each
+    directed leg on its fastest allowed class: no plan is faster, so a
+    path late on them is ruled out. ``feeder_slow`` and ``trunk_slow`` are
+    the slowest allowed class's hours: a path on time on them is on time
+    whichever classes run it, so only the paths between need speed levels.
+    """
 
     w: np.ndarray
     cand: list[int]
@@ -316,11 +329,11 @@ class _Setup:
     feeder_t: np.ndarray
     trunk_t: np.ndarray
     direct_t: np.ndarray
+    feeder_slow: np.ndarray
+    trunk_slow: np.ndarray
     direct_pairs: frozenset[tuple[int, int]]
     feeder_ok: np.ndarray  # (n, n) bool: terminal i may be allocated to hub k
     trunk_ok: np.ndarray  # (n, n) bool
-    # each leg's fastest class's hours, (n, n): only to explain a missed deadline
-    fastest_t: dict[str, np.ndarray] = field(default_factory=dict)
     late: dict[tuple[int, int], np.ndarray] = field(default_factory=dict)
 
 
@@ -375,38 +388,40 @@ def _setup(
         tables=tables,
         allow=allowances(data, fp),
         sort=sort_hours(data, fp),
-        feeder_t=tables.timetable("feeder", both),
-        trunk_t=tables.timetable("trunk", both),
-        direct_t=tables.timetable("direct", both),
+        feeder_t=tables.timetable("feeder", both, fastest=True),
+        trunk_t=tables.timetable("trunk", both, fastest=True),
+        direct_t=tables.timetable("direct", both, fastest=True),
+        feeder_slow=tables.timetable("feeder", both),
+        trunk_slow=tables.timetable("trunk", both),
         direct_pairs=frozenset(pairs),
         feeder_ok=feeder_ok,
         trunk_ok=trunk_ok,
-        fastest_t={
-            tier: tables.timetable(tier, both, fastest=True)
-            for tier in ("feeder", "trunk", "direct")
-        },
     )
 
 
 def path_hours(st: _Setup, i: int, k: int, m: int, j: int) -> float:
-    """Transit hours of ``i -> hub k -> hub m -> j`` (``k == m``: one hub)."""
+    """Transit hours of ``i -> hub k -> hub m -> j`` (``k == m``: one hub), fastest classes."""
     t = st.feeder_t[i, k] + st.sort[k] + st.feeder_t[m, j]
     if k != m:
         t += st.trunk_t[k, m] + st.sort[m]
     return float(t)
 
 
-def _path_matrix(st: _Setup, i: int, j: int) -> np.ndarray:
-    """``(|cand|, |cand|)`` transit hours of OD (i, j) over every hub pair (inf if impossible)."""
+def _path_matrix(st: _Setup, i: int, j: int, *, slow: bool = False) -> np.ndarray:
+    """``(|cand|, |cand|)`` transit hours of OD (i, j) over every hub pair (inf if impossible).
+
+    On every leg's fastest allowed class, or with ``slow`` its slowest.
+    """
     c = np.asarray(st.cand)
+    feeder, trunk_h = (st.feeder_slow, st.trunk_slow) if slow else (st.feeder_t, st.trunk_t)
     t = (
-        st.feeder_t[i, c][:, None]
+        feeder[i, c][:, None]
         + st.sort[c][:, None]
-        + st.trunk_t[np.ix_(c, c)]
+        + trunk_h[np.ix_(c, c)]
         + st.sort[c][None, :]
-        + st.feeder_t[c, j][None, :]
+        + feeder[c, j][None, :]
     )
-    same = st.feeder_t[i, c] + st.sort[c] + st.feeder_t[c, j]
+    same = feeder[i, c] + st.sort[c] + feeder[c, j]
     t[np.diag_indices_from(t)] = same
     t = np.where(st.feeder_ok[i, c][:, None] & st.feeder_ok[j, c][None, :], t, np.inf)
     trunk = st.trunk_ok[np.ix_(c, c)].copy()
@@ -505,21 +520,6 @@ def _quickest(st: _Setup, i: int, j: int) -> tuple[np.ndarray, float, float]:
     return paths, best, direct
 
 
-def _fastest_class_hours(st: _Setup, i: int, j: int) -> float:
-    """Hours of OD (i, j)'s quickest path were every leg run by its fastest class."""
-    if not st.fastest_t:
-        return math.inf
-    quick = dataclasses.replace(
-        st,
-        feeder_t=st.fastest_t["feeder"],
-        trunk_t=st.fastest_t["trunk"],
-        direct_t=st.fastest_t["direct"],
-        late={},
-    )
-    _, best, direct = _quickest(quick, i, j)
-    return min(best, direct)
-
-
 def unreachable_pairs(data: NetworkData, st: _Setup, limit: int = 20) -> list[str]:
     """Sentences naming OD pairs that miss their deadline even on their fastest path."""
     ids = data.ids
@@ -544,20 +544,12 @@ def unreachable_pairs(data: NetworkData, st: _Setup, limit: int = 20) -> list[st
             k, m = st.cand[pos[0]], st.cand[pos[1]]
             via = ids[k] if k == m else f"{ids[k]} and {ids[m]}"
             why = (
-                f"the fastest path, via {via}, takes {best:.1f} h "
+                f"the fastest path, via {via}, takes {best:.1f} h on each leg's fastest class "
                 f"(feeder {st.feeder_t[i, k]:.1f} h, sort {st.sort[k]:.1f} h"
                 + (f", trunk {st.trunk_t[k, m]:.1f} h, sort {st.sort[m]:.1f} h" if k != m else "")
                 + f", feeder {st.feeder_t[m, j]:.1f} h)"
             )
-        sentence = f"{ids[i]} -> {ids[j]}: {why}, but {st.allow[i, j]:.1f} h are allowed"
-        quick = _fastest_class_hours(st, i, j)
-        if quick <= st.allow[i, j] + TIME_TOLERANCE_H:
-            sentence += (
-                f" (each leg is timed at the slowest class allowed on its tier; with the "
-                f"fastest class on every leg it would take {quick:.1f} h: keep the slower "
-                "classes off the tiers it uses, in the vehicles table's tiers column)"
-            )
-        out.append(sentence)
+        out.append(f"{ids[i]} -> {ids[j]}: {why}, but {st.allow[i, j]:.1f} h are allowed")
     if late > len(out):
         out.append(f"... and {late - len(out)} more OD pairs")
     return out
@@ -611,6 +603,161 @@ def _var(
     prob: pulp.LpProblem, name: str, low: float | None, up: float | None, cat: str
 ) -> pulp.LpVariable:
     return prob.add_variable(name, low, up, cat=cat)
+
+
+#: A lane as its vehicles are keyed, without the class: (tier, a, b, way).
+_LaneId = tuple[str, int, int, int]
+
+
+def _leg_lane(round_trips: bool, tier: str, s: int, t: int, into: bool = True) -> _LaneId:
+    """The lane whose vehicles run the directed leg ``s -> t``.
+
+    Feeder lanes are keyed (terminal, hub): ``into`` says the leg runs into
+    the hub (``s`` the terminal), else out of it (``t`` the terminal; way 1
+    with one-way runs). Round-trip trunk and direct lanes are keyed by the
+    lower index first.
+    """
+    if tier == "feeder":
+        if into:
+            return ("feeder", s, t, 0)
+        return ("feeder", t, s, 0 if round_trips else 1)
+    if round_trips:
+        return (tier, min(s, t), max(s, t), 0)
+    return (tier, s, t, 0)
+
+
+def lane_runs(round_trips: bool, lane: _LaneId) -> tuple[tuple[int, int], ...]:
+    """The directed runs ``(from, to)`` a lane's vehicles make: both ways on a round trip."""
+    tier, a, b, way = lane
+    if round_trips:
+        return ((a, b), (b, a))
+    return ((b, a),) if way == 1 else ((a, b),)
+
+
+def speed_levels(
+    tables: LegTables, classes: Sequence[int], runs: Sequence[tuple[int, int]]
+) -> list[frozenset[int]]:
+    """A lane's speed levels: the class sets it may be limited to, quickest first.
+
+    A level is every class whose run takes at most a threshold of hours in
+    each direction (thresholds: the classes' own hours); its hours are its
+    slowest class's. Whatever classes a plan runs on the lane, the level of
+    their slowest hours holds them all and takes exactly those hours, so
+    choosing one level per lane times every leg exactly. Hours, not speeds:
+    the drivers'-hours rules can make a slower class arrive sooner (a second
+    driver, a relay in place of a break). Levels with the same hours both
+    ways are one (the larger set), compared exactly: the deadline tolerance
+    applies once per route, not once per leg.
+    """
+    hours = {c: tuple(float(tables.transit_h[c, s, t]) for s, t in runs) for c in classes}
+    thresholds = [sorted({h[d] for h in hours.values()}) for d in range(len(runs))]
+    found: dict[tuple[float, ...], frozenset[int]] = {}
+    for limits in itertools.product(*thresholds):
+        level = frozenset(
+            c for c, h in hours.items() if all(x <= y for x, y in zip(h, limits, strict=True))
+        )
+        if not level:
+            continue
+        key = tuple(max(hours[c][d] for c in level) for d in range(len(runs)))
+        if len(found.get(key, ())) < len(level):
+            found[key] = level
+    return [found[key] for key in sorted(found, key=lambda k: (sum(k), k))]
+
+
+def level_hours(tables: LegTables, level: frozenset[int], s: int, t: int) -> float:
+    """Hours of the run ``s -> t`` at a speed level: its slowest class's."""
+    return max(float(tables.transit_h[c, s, t]) for c in level)
+
+
+class _LaneLevels:
+    """Speed levels of the lanes whose classes differ in hours (see :func:`speed_levels`).
+
+    Made on demand. For a lane with two or more levels, a binary per level;
+    on a terminal's feeder lane they sum to its allocation, elsewhere to at
+    most 1; the dispatches of class c are at most ``most_c x`` the sum of
+    the levels that include c (``most_c``: whole vehicles of c for the
+    lane's largest volume one way).
+    """
+
+    def __init__(
+        self,
+        prob: pulp.LpProblem,
+        st: _Setup,
+        fp: FreightParams,
+        vehicles: Mapping[LaneKey, pulp.LpVariable],
+        x: Mapping[tuple[int, int], pulp.LpVariable],
+    ) -> None:
+        self.prob, self.st, self.fp, self.vehicles, self.x = prob, st, fp, vehicles, x
+        self.classes: dict[_LaneId, list[int]] = defaultdict(list)
+        for tier, a, b, c, way in vehicles:
+            self.classes[tier, a, b, way].append(c)
+        w = st.w
+        self.out_vol, self.in_vol, self.total = w.sum(axis=1), w.sum(axis=0), float(w.sum())
+        self.made: dict[_LaneId, list[tuple[frozenset[int], pulp.LpVariable]] | None] = {}
+        self.shapes: dict[_LaneId, list[frozenset[int]]] = {}
+
+    def _most(self, lane: _LaneId) -> float:
+        """Largest volume the lane's runs may carry one way, units per day."""
+        tier, a, b, way = lane
+        if tier == "direct":
+            w = self.st.w
+            return float(max(w[a, b], w[b, a]) if self.fp.round_trips else w[a, b])
+        if tier == "trunk":
+            return self.total
+        if self.fp.round_trips:
+            return float(max(self.out_vol[a], self.in_vol[a]))
+        return float(self.in_vol[a] if way == 1 else self.out_vol[a])
+
+    def levels(self, lane: _LaneId) -> list[tuple[frozenset[int], pulp.LpVariable]] | None:
+        """The lane's levels with their binaries, or ``None`` when it has one speed."""
+        if lane in self.made:
+            return self.made[lane]
+        tier, a, b, way = lane
+        levels = self.shape(lane)
+        if len(levels) < 2:
+            self.made[lane] = None
+            return None
+        cls = self.classes[lane]
+        name = f"level_{tier}_{a}_{b}_{way}"
+        got = [
+            (level, _var(self.prob, f"{name}_{s}", 0, 1, pulp.LpBinary))
+            for s, level in enumerate(levels)
+        ]
+        total = pulp.lpSum(v for _, v in got)
+        if tier == "feeder":
+            self.prob += total - self.x[a, b] == 0, f"{name}_one"
+        else:
+            self.prob += total <= 1, f"{name}_one"
+        most = self._most(lane)
+        for c in cls:
+            cap = float(max(1, math.ceil(most / float(self.st.tables.payload[c]) - 1e-9)))
+            self.prob += (
+                self.vehicles[tier, a, b, c, way] - cap * pulp.lpSum(v for lv, v in got if c in lv)
+                <= 0,
+                f"{name}_class_{c}",
+            )
+        self.made[lane] = got
+        return got
+
+    def shape(self, lane: _LaneId) -> list[frozenset[int]]:
+        """The lane's speed levels (:func:`speed_levels`; none when no class runs it)."""
+        got = self.shapes.get(lane)
+        if got is None:
+            cls = self.classes.get(lane, [])
+            runs = lane_runs(self.fp.round_trips, lane)
+            got = speed_levels(self.st.tables, cls, runs) if cls else []
+            self.shapes[lane] = got
+        return got
+
+    def hours(self, lane: _LaneId, s: int, t: int) -> list[float]:
+        """Distinct hours of the run ``s -> t`` over the lane's levels, ascending."""
+        return sorted({level_hours(self.st.tables, lv, s, t) for lv in self.shape(lane)})
+
+    def at_least(self, lane: _LaneId, s: int, t: int, hours: float) -> list[pulp.LpVariable]:
+        """Binaries of the lane's levels whose run ``s -> t`` takes ``hours`` or more."""
+        got = self.levels(lane)
+        assert got is not None
+        return [v for lv, v in got if level_hours(self.st.tables, lv, s, t) >= hours]
 
 
 def build_freight_model(
@@ -847,6 +994,24 @@ def build_freight_model(
             back = g_in.get((i, k), {})
             if there or back:
                 cover("feeder", i, k, there, back)
+    # A terminal's feeder lane runs only if it works with that hub. Without
+    # this a free (zero-cost) class could run on a lane nobody uses, and the
+    # plan would time the same road's runs by it (a hub's own feeder lane
+    # to another hub and a terminal's lane into it are one road).
+    feeder_runs: dict[tuple[int, int, int], list[tuple[int, pulp.LpVariable]]] = defaultdict(list)
+    for (tier, a, b, c, way), v in vehicles.items():
+        if tier == "feeder":
+            feeder_runs[a, b, way].append((c, v))
+    for (a, b, way), runs in feeder_runs.items():
+        if fp.round_trips:
+            most = float(max(out_vol[a], in_vol[a]))
+        else:
+            most = float(in_vol[a] if way == 1 else out_vol[a])
+        cap = max(1.0, math.ceil(most / min(float(tables.payload[c]) for c, _ in runs) - 1e-9))
+        prob += (
+            expr([(v, 1.0) for _, v in runs] + [(x[a, b], -float(cap))]) <= 0,
+            f"feeder_used_{a}_{b}_{way}",
+        )
     done: set[tuple[int, int]] = set()
     for k, m in trunk_pairs:
         key = (min(k, m), max(k, m)) if fp.round_trips else (k, m)
@@ -869,6 +1034,19 @@ def build_freight_model(
         back = {direct[b, a]: float(w[b, a])} if fp.round_trips and (b, a) in direct else {}
         cover("direct", a, b, there, back)
 
+    # Likewise a trunk lane runs only between open hubs.
+    trunk_runs: dict[tuple[int, int, int], list[tuple[int, pulp.LpVariable]]] = defaultdict(list)
+    for (tier, a, b, c, way), v in vehicles.items():
+        if tier == "trunk":
+            trunk_runs[a, b, way].append((c, v))
+    for (a, b, way), runs in trunk_runs.items():
+        cap = max(1.0, math.ceil(float(w.sum()) / min(float(tables.payload[c]) for c, _ in runs)))
+        for end in (a, b):
+            opens = [(x[end, end], -float(cap))] if (end, end) in x else []
+            prob += (
+                expr([(v, 1.0) for _, v in runs] + opens) <= 0,
+                f"trunk_used_{a}_{b}_{way}_{end}",
+            )
     if fp.integer_vehicles:
         # Valid for whole vehicles: a leg that carries anything needs at least
         # one vehicle. Much tighter than the payload rows alone when a leg's
@@ -941,39 +1119,170 @@ def build_freight_model(
                     (f"one_vehicle_direct_{i}_{j}"),
                 )
 
-    # service deadlines
+    # Speed levels where a lane's classes differ in speed (see _LaneLevels).
+    levels = _LaneLevels(prob, st, fp, vehicles, x)
+    rt = fp.round_trips
+    tol = TIME_TOLERANCE_H
+
+    # A direct lane carries its own pairs only: a pair's share runs on levels
+    # on time for it (a round trip's other pair may still use slower levels).
+    for (a, b), dv in direct.items():
+        if dv.upBound == 0:
+            continue
+        got = levels.levels(_leg_lane(rt, "direct", a, b))
+        if got is None:
+            continue
+        ok = [v for lv, v in got if level_hours(tables, lv, a, b) <= st.allow[a, b] + tol]
+        if len(ok) < len(got):
+            prob += dv - pulp.lpSum(ok) <= 0, f"direct_levels_{a}_{b}"
+
+    hours_matter = (
+        fp.minimise == "transit" or bool(fp.value_of_time) or fp.max_transit_h is not None
+    )
+    if hours_matter:
+        # Unit-hours above each leg's fastest class at the slower levels: exact,
+        # as a lane runs at one level. A terminal's own feeder volume is a
+        # constant times its allocation; other volumes get z >= volume - most
+        # x (1 - level), z >= 0.
+        for lane in list(levels.classes):
+            got = levels.levels(lane)
+            if got is None:
+                continue
+            tier, a, b, way = lane
+            directed: list[tuple[int, int, Mapping[pulp.LpVariable, float]]] = []
+            if tier == "feeder":
+                if rt or way == 0:
+                    directed.append((a, b, g_out.get((a, b), {})))
+                if rt or way == 1:
+                    directed.append((b, a, g_in.get((a, b), {})))
+            elif tier == "trunk":
+                directed.append((a, b, {v: 1.0 for v in trunk_flow.get((a, b), [])}))
+                if rt:
+                    directed.append((b, a, {v: 1.0 for v in trunk_flow.get((b, a), [])}))
+            else:
+                for s_, t_ in ((a, b), (b, a)) if rt else ((a, b),):
+                    if (s_, t_) in direct:
+                        directed.append((s_, t_, {direct[s_, t_]: float(w[s_, t_])}))
+            base_table = {"feeder": st.feeder_t, "trunk": st.trunk_t, "direct": st.direct_t}[tier]
+            most = levels._most(lane)
+            for s_, t_, volume in directed:
+                if not volume:
+                    continue
+                base = float(base_table[s_, t_])
+                for pos, (lv, v) in enumerate(got):
+                    extra = level_hours(tables, lv, s_, t_) - base
+                    if extra <= tol:
+                        continue
+                    own = tier == "feeder" and len(volume) == 1 and next(iter(volume)) is x[a, b]
+                    if own:
+                        hours_terms[v] += extra * volume[x[a, b]]
+                        continue
+                    name = f"level_h_{tier}_{a}_{b}_{way}_{s_}_{pos}"
+                    z = _var(prob, name, 0, None, pulp.LpContinuous)
+                    over: dict[pulp.LpVariable, float] = defaultdict(float, {z: 1.0, v: -most})
+                    for var, coef in volume.items():
+                        over[var] -= coef
+                    prob += expr(over) >= -most, name
+                    hours_terms[z] += extra
+
+    def leg_hours(tier: str, s: int, t: int, into: bool) -> tuple[_LaneId | None, list[float]]:
+        """The leg's lane if it has speed levels (else None), and its distinct hours, ascending."""
+        if s == t:
+            return None, [0.0]
+        lane = _leg_lane(rt, tier, s, t, into)
+        if not levels.shape(lane):  # no class runs it
+            table = st.feeder_t if tier == "feeder" else st.trunk_t
+            return None, [float(table[s, t])]
+        return (lane if levels.levels(lane) is not None else None), levels.hours(lane, s, t)
+
+    def first_late(hours: list[float], budget: float) -> float | None:
+        """The least of ``hours`` over ``budget``, if any."""
+        return next((h for h in hours if h > budget), None)
+
+    def at_level(
+        lane: _LaneId | None,
+        run: tuple[int, int],
+        hours: float,
+        least: float,
+        alloc: pulp.LpVariable | None,
+    ) -> list[pulp.LpVariable]:
+        """Binaries for "the run takes ``hours`` or more" on a lane.
+
+        At its quickest (``least``) that is the lane being used: the
+        allocation on a feeder lane, nothing to add on a trunk.
+        """
+        if lane is None or hours <= least:
+            return [alloc] if alloc is not None else []
+        return levels.at_least(lane, *run, hours)
+
+    def add_row(
+        terms: list[pulp.LpVariable], rhs: float, escape: pulp.LpVariable | None, name: str
+    ) -> None:
+        """``sum(terms) <= rhs`` (+ 1 when the pair goes all direct)."""
+        coefs: dict[pulp.LpVariable, float] = defaultdict(float)
+        for v in terms:
+            coefs[v] += 1.0
+        if escape is not None:
+            coefs[escape] -= 1.0
+        prob.addConstraint(expr(coefs) <= rhs, name)
+
+    # service deadlines: for each path late at some levels, a row that rules
+    # out those levels together with the path's two allocations
     rows = 0
     all_direct: dict[tuple[int, int], pulp.LpVariable] = {}
     odr, odc = np.nonzero(w)
     for i, j in zip(odr.tolist(), odc.tolist(), strict=True):
-        late = late_paths(st, i, j)
-        if not late.any():
+        late_at_some = _path_matrix(st, i, j, slow=True) > st.allow[i, j] + tol
+        if not late_at_some.any():
             continue
         escape = None
         if (i, j) in direct and _direct_on_time(st, i, j):
             escape = _var(prob, f"all_direct_{i}_{j}", 0, 1, pulp.LpBinary)
             all_direct[i, j] = escape
             prob += direct[i, j] - escape >= 0, f"all_direct_{i}_{j}"
+        limit = float(st.allow[i, j]) + tol
         for pk, k in enumerate(cand):
             if (i, k) not in x:
                 continue
-            ls = [cand[pl] for pl in np.nonzero(late[pk])[0].tolist() if (j, cand[pl]) in x]
-            if not ls:
+            ms = [
+                cand[pm]
+                for pm in np.nonzero(late_at_some[pk])[0].tolist()
+                if (j, cand[pm]) in x and (i != j or cand[pm] == k)
+            ]
+            if not ms:
                 continue
-            terms = defaultdict(float)
-            terms[x[i, k]] += 1.0
-            if i == j:
-                if k not in ls:
-                    continue
-                rhs = 0.0
-            else:
-                for m in ls:
-                    terms[x[j, m]] += 1.0
-                rhs = 1.0
-            if escape is not None:
-                terms[escape] -= 1.0
-            prob += expr(terms) <= rhs, f"deadline_{i}_{j}_{k}"
-            rows += 1
+            c_lane, c_hours = leg_hours("feeder", i, k, True)
+            before: list[tuple[int, float]] | None = None
+            for s1, h1 in enumerate(c_hours):
+                first = at_level(c_lane, (i, k), h1, c_hours[0], x[i, k])
+                ends: list[pulp.LpVariable] = []
+                sig: list[tuple[int, float]] = []
+                for m in ms:
+                    t_lane, t_hours = leg_hours("trunk", k, m, True)
+                    d_lane, d_hours = leg_hours("feeder", m, j, False)
+                    budget = limit - h1 - float(st.sort[k] + (st.sort[m] if k != m else 0.0))
+                    h3 = first_late(d_hours, budget - t_hours[0])
+                    if h3 is not None:
+                        ends += at_level(d_lane, (m, j), h3, d_hours[0], x[j, m])
+                        sig.append((m, h3))
+                    # slower trunk levels: rows with the trunk's level as a third term
+                    best = math.inf if h3 is None else h3
+                    for s2, h2 in enumerate(t_hours[1:], start=1):
+                        h3b = first_late(d_hours, budget - h2)
+                        if h3b is None or h3b >= best or t_lane is None:
+                            continue
+                        best = h3b
+                        three = (
+                            first
+                            + at_level(t_lane, (k, m), h2, t_hours[0], None)
+                            + at_level(d_lane, (m, j), h3b, d_hours[0], x[j, m])
+                        )
+                        add_row(three, 2.0, escape, f"deadline_{i}_{j}_{k}_{m}_{s1}_{s2}")
+                        rows += 1
+                if ends and sig != before:
+                    add_row(first + ends, 1.0, escape, f"deadline_{i}_{j}_{k}_{s1}")
+                    rows += 1
+                    before = sig
 
     if fp.value_of_time:
         for v, a in hours_terms.items():
@@ -1119,6 +1428,16 @@ def evaluate_freight(
     # tolerance (an x of 1e-6 times a terminal's volume) a direct share can
     # fall short of 1 by a speck that no vehicle covers; such specks go direct.
     speck = 1e-5 * max(1.0, float(w.sum()))
+    runs = _runs(plan, fp, tables)
+    fastest = {"feeder": st.feeder_t, "trunk": st.trunk_t, "direct": st.direct_t}
+
+    def run_hours(tier: str, s: int, t: int) -> float:
+        """Hours of the run s -> t: its slowest class run (a millionth of a vehicle is none)."""
+        used = [c for c, (n, _) in runs.get((tier, s, t), {}).items() if n > 1e-6]
+        if not used:
+            return float(fastest[tier][s, t])
+        return max(float(tables.transit_h[c, s, t]) for c in used)
+
     rows, cols = np.nonzero(w)
     for i, j in zip(rows.tolist(), cols.tolist(), strict=True):
         vol = float(w[i, j])
@@ -1126,7 +1445,7 @@ def evaluate_freight(
         dv = vol if 0.0 < vol - dv <= speck and dv > 0.0 else dv
         if dv > 1e-9:
             flows["direct", i, j] += dv
-            t = float(st.direct_t[i, j])
+            t = run_hours("direct", i, j)
             time_by_tier["direct"] += dv * t
             route_parts.append((i, j, dv, [("direct", i, j)], t, ()))
         hv = vol - dv
@@ -1136,16 +1455,16 @@ def evaluate_freight(
         legs_used: list[tuple[str, int, int]] = []
         if i != k:
             legs_used.append(("feeder", i, k))
-            time_by_tier["feeder"] += hv * float(st.feeder_t[i, k])
         if k != m:
             legs_used.append(("trunk", k, m))
-            time_by_tier["trunk"] += hv * float(st.trunk_t[k, m])
         if m != j:
             legs_used.append(("feeder", m, j))
-            time_by_tier["feeder"] += hv * float(st.feeder_t[m, j])
+        t = float(st.sort[k] + (st.sort[m] if m != k else 0.0))
         for key in legs_used:
             flows[key] += hv
-        t = path_hours(st, i, k, m, j)
+            hours = run_hours(*key)
+            time_by_tier[key[0]] += hv * hours
+            t += hours
         time_by_tier["sort"] += hv * float(st.sort[k] + (st.sort[m] if m != k else 0.0))
         handling_cost += hv * (handling[k] + (handling[m] if m != k else 0.0))
         through[k] += hv
@@ -1154,7 +1473,6 @@ def evaluate_freight(
             through[m] += hv
         route_parts.append((i, j, hv, legs_used, t, (k,) if k == m else (k, m)))
 
-    runs = _runs(plan, fp, tables)
     tier_cost: dict[str, float] = defaultdict(float)
     carbon_cost = 0.0
     basis = tables.co2e_wtw_kg if fp.emissions_basis == "wtw" else tables.co2e_ttw_kg
@@ -1162,7 +1480,6 @@ def evaluate_freight(
         c: {"runs": 0.0, "vehicle_km": 0.0, "co2e_ttw_kg": 0.0, "co2e_wtw_kg": 0.0}
         for c in range(len(tables.classes))
     }
-    timetables = {"feeder": st.feeder_t, "trunk": st.trunk_t, "direct": st.direct_t}
     legs: list[Leg] = []
     problems: list[str] = []
     order = sorted(runs.items(), key=lambda kv: (TIERS.index(kv[0][0]), kv[0][1:]))
@@ -1203,7 +1520,7 @@ def evaluate_freight(
                 dispatches={tables.classes[c].id: n for c, n in counts.items()},
                 capacity=capacity,
                 drive_h=float(max(tables.drive_h[c, s, t] for c in used)),
-                transit_h=float(timetables[tier][s, t]),
+                transit_h=run_hours(tier, s, t),
                 relays=int(max(tables.relays[c, s, t] for c in used)),
                 drivers=int(max(tables.drivers[c, s, t] for c in used)),
                 vehicle_km=float(sum(n * tables.km[s, t] for n in counts.values())),
@@ -1902,49 +2219,107 @@ def starting_freight_plan(
         k, m = int(assign[i]), int(assign[j])
         if path_hours(st, i, k, m, j) > st.allow[i, j] + TIME_TOLERANCE_H:
             shares[i, j] = 1.0
-    # flows on legs, then vehicles; lanes[key] = [volume there, volume back]
-    lanes: dict[tuple[str, int, int], list[float]] = defaultdict(lambda: [0.0, 0.0])
+    # Flows on lanes, keyed as the model's vehicles (tier, a, b, way); per
+    # lane [volume a -> b, volume b -> a].
+    rt = fp.round_trips
+    lanes: dict[_LaneId, list[float]] = defaultdict(lambda: [0.0, 0.0])
+    legs_of: list[tuple[int, int, list[tuple[_LaneId, int, int]]]] = []
 
-    def add(tier: str, a: int, b: int, vol: float) -> None:
-        if tier == "feeder" or not fp.round_trips:
-            lanes[tier, a, b][0] += vol
-        else:
-            lo, hi = min(a, b), max(a, b)
-            lanes[tier, lo, hi][0 if a == lo else 1] += vol
+    def add(lane: _LaneId, s: int, t: int, vol: float) -> tuple[_LaneId, int, int]:
+        lanes[lane][0 if (s, t) == (lane[1], lane[2]) else 1] += vol
+        return (lane, s, t)
 
     rows, cols = np.nonzero(st.w)
     for i, j in zip(rows.tolist(), cols.tolist(), strict=True):
         vol = float(st.w[i, j])
         if shares.get((i, j)):
-            add("direct", i, j, vol)
+            legs_of.append((i, j, [add(_leg_lane(rt, "direct", i, j), i, j, vol)]))
             continue
         k, m = int(assign[i]), int(assign[j])
+        used: list[tuple[_LaneId, int, int]] = []
         if i != k:
-            add("feeder", i, k, vol)  # (feeder, terminal, hub): into the hub
+            used.append(add(_leg_lane(rt, "feeder", i, k, True), i, k, vol))
         if k != m:
-            add("trunk", k, m, vol)
+            used.append(add(_leg_lane(rt, "trunk", k, m), k, m, vol))
         if m != j:
-            lanes["feeder", j, m][1] += vol  # out of the hub, back to the terminal
-    dispatches: dict[LaneKey, float] = {}
-    for (tier, a, b), (there, back) in lanes.items():
-        t = cast(Tier, tier)
-        if fp.round_trips:
-            cls = tables.lane_classes(t, a, b, both=True)
-            cost = [sum(dispatch_cost(tables, fp, t, a, b, c)) for c in cls]
-            counts = cheapest_cover(max(there, back), [tables.payload[c] for c in cls], cost)
-            for c, n in zip(cls, counts, strict=True):
-                if n:
-                    dispatches[tier, a, b, c, 0] = float(n)
-            continue
-        for way, (s, u, vol) in enumerate(((a, b, there), (b, a, back))):
-            if vol <= 0:
+            used.append(add(_leg_lane(rt, "feeder", m, j, False), m, j, vol))
+        legs_of.append((i, j, used))
+
+    # Each lane's speed level: all its classes (the slowest), made quicker leg
+    # by leg where a route would be late, never slower in the lane's other
+    # direction. On the quickest levels every route is on time (allocations
+    # were checked on each leg's quickest class), unless a round trip's two
+    # directions are quickest with different classes; then there may be no start.
+    def lane_classes(lane: _LaneId) -> list[int]:
+        tier, a, b, way = lane
+        s, t = (b, a) if way == 1 else (a, b)
+        return tables.lane_classes(cast(Tier, tier), s, t, both=rt)
+
+    levels = {lane: speed_levels(tables, lane_classes(lane), lane_runs(rt, lane)) for lane in lanes}
+    if not all(levels.values()):
+        return None  # a lane no class may run: ruled out upstream
+    lane_hours = {
+        lane: [tuple(level_hours(tables, lv, s, t) for s, t in lane_runs(rt, lane)) for lv in got]
+        for lane, got in levels.items()
+    }
+    # every class: the largest level
+    at = {lane: int(np.argmax([len(lv) for lv in got])) for lane, got in levels.items()}
+    hours_at = {
+        leg: [level_hours(tables, level, leg[1], leg[2]) for level in levels[leg[0]]]
+        for _, _, used in legs_of
+        for leg in used
+    }
+    limit: list[tuple[float, list[tuple[_LaneId, int, int]]]] = []
+    for i, j, used in legs_of:
+        if used and used[0][0][0] != "direct":
+            k, m = int(assign[i]), int(assign[j])
+            budget = (
+                float(st.allow[i, j])
+                + TIME_TOLERANCE_H
+                - float(st.sort[k] + (st.sort[m] if k != m else 0.0))
+            )
+        else:
+            budget = float(st.allow[i, j]) + TIME_TOLERANCE_H
+        if sum(hours_at[leg][at[leg[0]]] for leg in used) > budget:
+            limit.append((budget, used))
+
+    for _ in range(sum(len(got) for got in levels.values()) + 1):
+        changed = False
+        for budget, used in limit:
+            if sum(hours_at[leg][at[leg[0]]] for leg in used) <= budget:
                 continue
-            cls = tables.lane_classes(t, s, u, both=False)
-            cost = [one_way_cost(tables, fp, t, s, u, c, from_hub=way == 1) for c in cls]
-            counts = cheapest_cover(vol, [tables.payload[c] for c in cls], cost)
-            for c, n in zip(cls, counts, strict=True):
-                if n:
-                    dispatches[tier, a, b, c, way] = float(n)
+            # the quicker level of one leg's lane that saves the most hours
+            gain, pick = 0.0, None
+            for leg in used:
+                lane = leg[0]
+                now = lane_hours[lane][at[lane]]
+                for q, then in enumerate(lane_hours[lane]):
+                    saved = hours_at[leg][at[lane]] - hours_at[leg][q]
+                    if saved > gain and all(x <= y for x, y in zip(then, now, strict=True)):
+                        gain, pick = saved, (lane, q)
+            if pick is None:
+                return None  # no quicker level left on this route's legs
+            at[pick[0]] = pick[1]
+            changed = True
+        if not changed:
+            break
+
+    dispatches: dict[LaneKey, float] = {}
+    for lane, (there, back) in lanes.items():
+        tier, a, b, way = lane
+        t = cast(Tier, tier)
+        cls = sorted(levels[lane][at[lane]])
+        if rt:
+            cost = [sum(dispatch_cost(tables, fp, t, a, b, c)) for c in cls]
+            volume = max(there, back)
+        else:
+            s_, u_ = (b, a) if way == 1 else (a, b)
+            cost = [one_way_cost(tables, fp, t, s_, u_, c, from_hub=way == 1) for c in cls]
+            volume = there + back
+        counts = cheapest_cover(volume, [tables.payload[c] for c in cls], cost)
+        for c, n in zip(cls, counts, strict=True):
+            if n:
+                dispatches[tier, a, b, c, way] = float(n)
     return FreightPlan(tuple(sorted(hubs)), assign, shares, dispatches)
 
 

@@ -808,6 +808,38 @@ def _transit(sol: Solution, od: tuple[str, str]) -> float:
 
 
 @PROPERTY_SETTINGS
+@given(inst=instances(), slower=st.floats(0.5, 0.9), cheaper=st.floats(0.3, 0.9))
+def test_a_slower_cheaper_class_never_raises_the_cost_under_tight_deadlines(
+    inst: tuple[NetworkData, DistanceMatrix, int, FreightParams], slower: float, cheaper: float
+) -> None:
+    # Deadlines tightened to the optimal plan's own transit times; then a copy
+    # of the first class, slower and cheaper per km, joins it on every tier.
+    # The old plan still qualifies (a leg takes the time of the classes run on
+    # it), so the optimum cannot rise, and every route stays on time.
+    data, dm, p, fp = inst
+    base = solve(data, dm, fp, hubs=p)
+    demand = tuple(
+        dataclasses.replace(d, max_hours=_transit(base, (d.origin, d.destination)))
+        for d in data.demand
+    )
+    tight = dataclasses.replace(data, demand=demand)
+    first = data.vehicles[0]
+    slow = dataclasses.replace(
+        first,
+        id="slow",
+        name="slower copy",
+        speed_kmh=first.speed_kmh * slower,
+        cost_per_km=first.cost_per_km * cheaper,
+    )
+    without = solve(tight, dm, fp, hubs=p)
+    with_slow = solve(dataclasses.replace(tight, vehicles=(*data.vehicles, slow)), dm, fp, hubs=p)
+    assert _le(with_slow.costs["total"], without.costs["total"])
+    for r in with_slow.routes:
+        assert r.transit_h is not None and r.allowance_h is not None
+        assert r.transit_h <= r.allowance_h + 1e-6, r
+
+
+@PROPERTY_SETTINGS
 @given(inst=instances(), row=st.integers(0, 9), share=st.floats(0.0, 0.99))
 def test_tightening_a_deadline_never_lowers_the_cost(
     inst: tuple[NetworkData, DistanceMatrix, int, FreightParams], row: int, share: float

@@ -170,10 +170,10 @@ def test_hours_follow_speeds_and_the_eu_break_rule(tables: dict[str, pd.DataFram
         used = per_leg[(leg["tier"], leg["from_site"], leg["to_site"])]["vehicle_class"]
         # driving time: km / speed of the slowest class run on the leg
         assert leg["drive_h"] == pytest.approx(km / speeds[list(used)].min(), rel=1e-12)
-        # timetable: the slowest class allowed on the tier, plus a 45 min break for every
+        # transit: the slowest class run on the leg, plus a 45 min break for every
         # full 4.5 h of driving (Reg. 561/2006 Art. 7) on a run one driver may drive (Art. 6(1))
-        allowed = [c for c in speeds.index if leg["tier"] in tiers[c]]
-        drive = km / speeds[allowed].min()
+        assert all(leg["tier"] in tiers[c] for c in used)
+        drive = km / speeds[list(used)].min()
         assert drive <= EU_DAILY_DRIVING_H
         breaks = math.ceil(drive / EU_DRIVING_BEFORE_BREAK_H) - 1
         assert leg["transit_h"] == pytest.approx(drive + breaks * EU_BREAK_H, rel=1e-9)

@@ -159,8 +159,8 @@ FREIGHT_COLUMNS: dict[str, dict[str, str]] = {
         "fill": "volume_per_day / capacity, a fraction (0 for an empty return).",
         "drive_h": "Driving hours of one run, at the slowest class run on the leg, h.",
         "transit_h": (
-            "Hours from departure to arrival of one run (driving, breaks and relays) on the "
-            "leg's timetable, the time of the slowest class allowed on the tier, h."
+            "Hours from departure to arrival of one run (driving, breaks and relays) at the "
+            "slowest class run on the leg, h."
         ),
         "relays": "Driver changes on one run, a count (drivers' hours rules).",
         "drivers": "Drivers on board one run, a count (2 = double-manned).",
@@ -211,8 +211,8 @@ FREIGHT_COLUMNS: dict[str, dict[str, str]] = {
     },
     "routes": {
         "transit_h": (
-            "Hours from the origin's cut-off to arrival at the destination: the legs' "
-            "timetable hours plus the sort hours at every hub passed, h."
+            "Hours from the origin's cut-off to arrival at the destination: the legs' hours "
+            "(each at the slowest class run on it) plus the sort hours at every hub passed, h."
         ),
         "allowance_h": "Hours allowed from the origin's cut-off to the delivery deadline, h.",
         "slack_h": "allowance_h - transit_h: hours to spare (negative = late), h.",
