@@ -153,6 +153,13 @@ def solve(
             f"[bold]{stats.status}[/bold]: {len(sol.hubs)} hubs ({', '.join(sol.hub_ids)}), "
             f"cost {sol.costs['total']:,.2f} per day, "
             + (f"gap {100 * stats.gap:.4f} %" if stats.gap is not None else "no bound proven")
+            + (
+                " (proven within solver.gap)"
+                if stats.status == "optimal" and (stats.gap or 0.0) > 1e-6
+                else " (not proven optimal)"
+                if stats.status == "time_limit"
+                else ""
+            )
         )
         _err.print(f"wrote {path}")
     raise typer.Exit(EXIT_OK)

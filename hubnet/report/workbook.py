@@ -54,10 +54,10 @@ def sheet_order(tables: Mapping[str, object]) -> list[str]:
 SITES_COLUMNS: dict[str, str] = {
     "id": "Site id.",
     "name": "Site name.",
-    "lat": "Latitude, degrees (WGS84).",
-    "lon": "Longitude, degrees (WGS84).",
-    "x": "Planar x coordinate, in the data's own length unit.",
-    "y": "Planar y coordinate, in the data's own length unit.",
+    "lat": "Latitude, degrees (WGS84); for sites given as latitude and longitude.",
+    "lon": "Longitude, degrees (WGS84); for sites given as latitude and longitude.",
+    "x": "Planar x coordinate, in the data's own length unit; for planar sites (not lat/lon).",
+    "y": "Planar y coordinate, in the data's own length unit; for planar sites (not lat/lon).",
     "candidate_hub": "true when the model could open a hub at the site.",
 }
 
@@ -125,7 +125,7 @@ def column_unit(column: str, volume_unit: str = "units") -> str:
         return "h"
     if column.endswith("_per_day") or column == "avg_volume_per_leg":
         return f"{volume_unit}/day"
-    if column in ("legs", "terminal_count", "hub_count", "rank"):
+    if column in ("legs", "terminal_count", "hub_count"):
         return "count"
     return ""
 
