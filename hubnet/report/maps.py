@@ -617,9 +617,9 @@ def _legend(
         f"<div class='hn-note'>Largest hub: {esc(fmt_num(largest_throughput, 0))} "
         f"{esc(unit)} per day</div>"
         f"<div>{_circle_key(TERMINAL_RADIUS_PX, TERMINAL_FILL)}Terminal</div>"
-        "<div class='hn-note'>Each leg bends to the right of its direction of travel:<br>"
-        "the two directions of a lane are drawn side by side.<br>"
-        "Click a line or a circle for its figures.</div></details>"
+        "<div class='hn-note'>Each leg bends to the right of its direction of travel, "
+        "so the two directions of a lane are drawn side by side.</div>"
+        "<div class='hn-note'>Click a line or a circle for its figures.</div></details>"
     )
     return "".join(parts)
 
