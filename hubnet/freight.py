@@ -684,19 +684,16 @@ class _LaneLevels:
         prob: pulp.LpProblem,
         st: _Setup,
         fp: FreightParams,
-        vehicles: Mapping[LaneKey, pulp.LpVariable],
+        runs: Mapping[_LaneId, list[tuple[int, pulp.LpVariable]]],
         x: Mapping[tuple[int, int], pulp.LpVariable],
     ) -> None:
-        self.prob, self.st, self.fp, self.vehicles, self.x = prob, st, fp, vehicles, x
-        self.classes: dict[_LaneId, list[int]] = defaultdict(list)
-        for tier, a, b, c, way in vehicles:
-            self.classes[tier, a, b, way].append(c)
+        self.prob, self.st, self.fp, self.runs, self.x = prob, st, fp, runs, x
         w = st.w
         self.out_vol, self.in_vol, self.total = w.sum(axis=1), w.sum(axis=0), float(w.sum())
         self.made: dict[_LaneId, list[tuple[frozenset[int], pulp.LpVariable]] | None] = {}
         self.shapes: dict[_LaneId, list[frozenset[int]]] = {}
 
-    def _most(self, lane: _LaneId) -> float:
+    def most(self, lane: _LaneId) -> float:
         """Largest volume the lane's runs may carry one way, units per day."""
         tier, a, b, way = lane
         if tier == "direct":
@@ -717,7 +714,6 @@ class _LaneLevels:
         if len(levels) < 2:
             self.made[lane] = None
             return None
-        cls = self.classes[lane]
         name = f"level_{tier}_{a}_{b}_{way}"
         got = [
             (level, _var(self.prob, f"{name}_{s}", 0, 1, pulp.LpBinary))
@@ -728,12 +724,11 @@ class _LaneLevels:
             self.prob += total - self.x[a, b] == 0, f"{name}_one"
         else:
             self.prob += total <= 1, f"{name}_one"
-        most = self._most(lane)
-        for c in cls:
+        most = self.most(lane)
+        for c, vehicles in self.runs[lane]:
             cap = float(max(1, math.ceil(most / float(self.st.tables.payload[c]) - 1e-9)))
             self.prob += (
-                self.vehicles[tier, a, b, c, way] - cap * pulp.lpSum(v for lv, v in got if c in lv)
-                <= 0,
+                vehicles - cap * pulp.lpSum(v for lv, v in got if c in lv) <= 0,
                 f"{name}_class_{c}",
             )
         self.made[lane] = got
@@ -743,7 +738,7 @@ class _LaneLevels:
         """The lane's speed levels (:func:`speed_levels`; none when no class runs it)."""
         got = self.shapes.get(lane)
         if got is None:
-            cls = self.classes.get(lane, [])
+            cls = [c for c, _ in self.runs.get(lane, [])]
             runs = lane_runs(self.fp.round_trips, lane)
             got = speed_levels(self.st.tables, cls, runs) if cls else []
             self.shapes[lane] = got
@@ -994,24 +989,6 @@ def build_freight_model(
             back = g_in.get((i, k), {})
             if there or back:
                 cover("feeder", i, k, there, back)
-    # A terminal's feeder lane runs only if it works with that hub. Without
-    # this a free (zero-cost) class could run on a lane nobody uses, and the
-    # plan would time the same road's runs by it (a hub's own feeder lane
-    # to another hub and a terminal's lane into it are one road).
-    feeder_runs: dict[tuple[int, int, int], list[tuple[int, pulp.LpVariable]]] = defaultdict(list)
-    for (tier, a, b, c, way), v in vehicles.items():
-        if tier == "feeder":
-            feeder_runs[a, b, way].append((c, v))
-    for (a, b, way), runs in feeder_runs.items():
-        if fp.round_trips:
-            most = float(max(out_vol[a], in_vol[a]))
-        else:
-            most = float(in_vol[a] if way == 1 else out_vol[a])
-        cap = max(1.0, math.ceil(most / min(float(tables.payload[c]) for c, _ in runs) - 1e-9))
-        prob += (
-            expr([(v, 1.0) for _, v in runs] + [(x[a, b], -float(cap))]) <= 0,
-            f"feeder_used_{a}_{b}_{way}",
-        )
     done: set[tuple[int, int]] = set()
     for k, m in trunk_pairs:
         key = (min(k, m), max(k, m)) if fp.round_trips else (k, m)
@@ -1034,29 +1011,38 @@ def build_freight_model(
         back = {direct[b, a]: float(w[b, a])} if fp.round_trips and (b, a) in direct else {}
         cover("direct", a, b, there, back)
 
-    # Likewise a trunk lane runs only between open hubs.
-    trunk_runs: dict[tuple[int, int, int], list[tuple[int, pulp.LpVariable]]] = defaultdict(list)
+    # Vehicle variables of each run (tier, a, b, direction), with their class.
+    by_run: dict[tuple[str, int, int, int], list[tuple[int, pulp.LpVariable]]] = defaultdict(list)
     for (tier, a, b, c, way), v in vehicles.items():
-        if tier == "trunk":
-            trunk_runs[a, b, way].append((c, v))
-    for (a, b, way), runs in trunk_runs.items():
-        cap = max(1.0, math.ceil(float(w.sum()) / min(float(tables.payload[c]) for c, _ in runs)))
-        for end in (a, b):
-            opens = [(x[end, end], -float(cap))] if (end, end) in x else []
+        by_run[tier, a, b, way].append((c, v))
+    # Speed levels where a lane's classes differ in hours (see _LaneLevels).
+    levels = _LaneLevels(prob, st, fp, by_run, x)
+
+    # A terminal's feeder lane runs only if it works with that hub, a trunk
+    # lane only between open hubs. Without this a free (zero-cost) class
+    # could run on a lane nobody uses, and the plan would time the same
+    # road's runs by it (a hub's own feeder lane to another hub and a
+    # terminal's lane into it are one road).
+    for (tier, a, b, way), runs in by_run.items():
+        smallest = min(float(tables.payload[c]) for c, _ in runs)
+        if tier == "feeder":
+            cap = max(1.0, math.ceil(levels.most((tier, a, b, way)) / smallest - 1e-9))
             prob += (
-                expr([(v, 1.0) for _, v in runs] + opens) <= 0,
-                f"trunk_used_{a}_{b}_{way}_{end}",
+                expr([(v, 1.0) for _, v in runs] + [(x[a, b], -float(cap))]) <= 0,
+                f"feeder_used_{a}_{b}_{way}",
             )
+        elif tier == "trunk":
+            cap = max(1.0, math.ceil(float(w.sum()) / smallest))
+            for end in (a, b):
+                opens = [(x[end, end], -float(cap))] if (end, end) in x else []
+                prob += (
+                    expr([(v, 1.0) for _, v in runs] + opens) <= 0,
+                    f"trunk_used_{a}_{b}_{way}_{end}",
+                )
     if fp.integer_vehicles:
         # Valid for whole vehicles: a leg that carries anything needs at least
         # one vehicle. Much tighter than the payload rows alone when a leg's
         # volume is a fraction of a payload (most feeder legs).
-        # Vehicle variables of each run (tier, a, b, direction), with their class.
-        by_run: dict[tuple[str, int, int, int], list[tuple[int, pulp.LpVariable]]] = defaultdict(
-            list
-        )
-        for (tier, a, b, c, way), v in vehicles.items():
-            by_run[tier, a, b, way].append((c, v))
         # FIX (found by tests/test_freight.py): only volume that cannot go direct
         # forces a feeder vehicle; a terminal whose volume may all go direct needs none.
         hub_out, hub_in = out_vol.copy(), in_vol.copy()
@@ -1119,8 +1105,6 @@ def build_freight_model(
                     (f"one_vehicle_direct_{i}_{j}"),
                 )
 
-    # Speed levels where a lane's classes differ in speed (see _LaneLevels).
-    levels = _LaneLevels(prob, st, fp, vehicles, x)
     rt = fp.round_trips
     tol = TIME_TOLERANCE_H
 
@@ -1144,7 +1128,7 @@ def build_freight_model(
         # as a lane runs at one level. A terminal's own feeder volume is a
         # constant times its allocation; other volumes get z >= volume - most
         # x (1 - level), z >= 0.
-        for lane in list(levels.classes):
+        for lane in by_run:
             got = levels.levels(lane)
             if got is None:
                 continue
@@ -1164,7 +1148,7 @@ def build_freight_model(
                     if (s_, t_) in direct:
                         directed.append((s_, t_, {direct[s_, t_]: float(w[s_, t_])}))
             base_table = {"feeder": st.feeder_t, "trunk": st.trunk_t, "direct": st.direct_t}[tier]
-            most = levels._most(lane)
+            most = levels.most(lane)
             for s_, t_, volume in directed:
                 if not volume:
                     continue
@@ -1459,13 +1443,14 @@ def evaluate_freight(
             legs_used.append(("trunk", k, m))
         if m != j:
             legs_used.append(("feeder", m, j))
-        t = float(st.sort[k] + (st.sort[m] if m != k else 0.0))
+        sorts = float(st.sort[k] + (st.sort[m] if m != k else 0.0))
+        t = sorts
         for key in legs_used:
             flows[key] += hv
             hours = run_hours(*key)
             time_by_tier[key[0]] += hv * hours
             t += hours
-        time_by_tier["sort"] += hv * float(st.sort[k] + (st.sort[m] if m != k else 0.0))
+        time_by_tier["sort"] += hv * sorts
         handling_cost += hv * (handling[k] + (handling[m] if m != k else 0.0))
         through[k] += hv
         inbound[k] += hv
@@ -2251,9 +2236,8 @@ def starting_freight_plan(
     # were checked on each leg's quickest class), unless a round trip's two
     # directions are quickest with different classes; then there may be no start.
     def lane_classes(lane: _LaneId) -> list[int]:
-        tier, a, b, way = lane
-        s, t = (b, a) if way == 1 else (a, b)
-        return tables.lane_classes(cast(Tier, tier), s, t, both=rt)
+        s, t = lane_runs(rt, lane)[0]
+        return tables.lane_classes(cast(Tier, lane[0]), s, t, both=rt)
 
     levels = {lane: speed_levels(tables, lane_classes(lane), lane_runs(rt, lane)) for lane in lanes}
     if not all(levels.values()):
@@ -2313,7 +2297,7 @@ def starting_freight_plan(
             cost = [sum(dispatch_cost(tables, fp, t, a, b, c)) for c in cls]
             volume = max(there, back)
         else:
-            s_, u_ = (b, a) if way == 1 else (a, b)
+            s_, u_ = lane_runs(rt, lane)[0]
             cost = [one_way_cost(tables, fp, t, s_, u_, c, from_hub=way == 1) for c in cls]
             volume = there + back
         counts = cheapest_cover(volume, [tables.payload[c] for c in cls], cost)
