@@ -27,9 +27,11 @@ Simplifications, stated so a planner can judge them:
 * Breaks fall exactly every ``max_driving_before_break_h`` of driving, and
   no break is needed when the driving ends on a limit: a run of 9 h under
   the EU rules has one break, between its two 4.5 h stints.
-* A relay splits a long run into equal stints, each driven by a fresh
-  driver who takes the stint's own breaks; a driver change costs the
-  relay time passed by the caller.
+* A relay splits a long run into the fewest stints one driver each may
+  drive, with the driver changes placed where they save the most breaks:
+  a fresh driver needs no break, so a 12 h EU run driven as 9 h + 3 h
+  stops for one break, where two equal 6 h stints would stop for two. A
+  driver change costs the relay time passed by the caller.
 * Two drivers on board ("multi-manning" in Regulation (EC) No 561/2006,
   Art. 7, second paragraph, from memory) take their breaks while the other
   drives, so the run has no break stops; it is allowed up to twice the daily
@@ -423,10 +425,12 @@ def time_leg(
     ``forbid``
         Not allowed; the note names the limit and its provision.
     ``relay``
-        Split into the fewest equal stints one driver each may drive
+        Split into the fewest stints one driver each may drive
         (``ceil(drive_h / max_daily_driving_h)`` unless the duty window needs
-        more), with ``stints - 1`` driver changes of ``relay_h`` each; every
-        stint has its own breaks.
+        more), with ``stints - 1`` driver changes of ``relay_h`` each. The
+        stints' lengths are chosen for the fewest breaks in all (each stint
+        has its own; a driver change resets the driving before a break), so
+        some stints are full days and one takes the rest.
     ``two_drivers``
         Two drivers on board, no break stops; allowed while
         ``drive_h <= 2 * max_daily_driving_h``.
@@ -457,7 +461,7 @@ def time_leg(
     >>> eu = load_rules("eu")
     >>> t = time_leg(12.0, eu, "relay", 0.25)
     >>> t.relays, t.breaks_h, t.transit_h
-    (1, 1.5, 13.75)
+    (1, 0.75, 13.0)
     """
     _check_args(rules, policy, relay_h)
     if not (math.isfinite(drive_h) and drive_h >= 0):
@@ -485,16 +489,73 @@ def time_leg(
     stints = max(1, math.ceil(drive_h / rules.max_daily_driving_h - _EPS))
     while not _one_driver_can(drive_h / stints, rules):
         stints += 1
-    stint = drive_h / stints
-    per_stint = _breaks_in(stint, rules)
+    blocks, lengths = _relay_split(drive_h, stints, rules)
+    breaks = blocks - stints
+    shown = ", ".join(_fmt(t) for t in lengths)
     note = (
-        f"relay: {stints} stints of {_fmt(stint)}, {stints - 1} driver "
-        f"change{'s' if stints != 2 else ''}, {per_stint} break{'s' if per_stint != 1 else ''} "
-        f"per stint; {why}"
+        f"relay: {stints} stints ({shown}), {stints - 1} driver "
+        f"change{'s' if stints != 2 else ''}, {breaks} break{'s' if breaks != 1 else ''} "
+        f"in all; {why}"
     )
-    return LegTiming(
-        drive_h, stints * per_stint * rules.break_h, stints - 1, 1, relay_h, True, note
+    return LegTiming(drive_h, breaks * rules.break_h, stints - 1, 1, relay_h, True, note)
+
+
+def _stint_cap(blocks: int, rules: DrivingRules) -> float:
+    """Longest stint one driver may drive with at most ``blocks - 1`` breaks, hours."""
+    best = 0.0
+    for b in range(1, blocks + 1):
+        cap = min(rules.max_daily_driving_h, b * rules.max_driving_before_break_h)
+        if rules.max_duty_window_h is not None:
+            cap = min(cap, rules.max_duty_window_h - (b - 1) * rules.break_h)
+        best = max(best, cap)
+    return best
+
+
+@cache
+def _relay_table(
+    rules: DrivingRules, stints: int
+) -> tuple[tuple[int, float, tuple[int, ...]], ...]:
+    """Ways to share driving between ``stints`` drivers, fewest blocks first.
+
+    A block is a stretch of driving between breaks; a stint of ``b`` blocks
+    takes ``b - 1`` breaks and may last up to :func:`_stint_cap`. Each entry
+    is (total blocks, longest run those blocks can cover in hours, blocks per
+    stint in descending order), keeping for each total the split that
+    covers the longest run.
+    """
+    most = max(1, math.ceil(rules.max_daily_driving_h / rules.max_driving_before_break_h - _EPS))
+    caps = [_stint_cap(b, rules) for b in range(most + 1)]
+    # best[total] = (cover, blocks per stint) over the stints so far: a knapsack
+    # by dynamic programming (small: stints x total x most steps).
+    best: dict[int, tuple[float, tuple[int, ...]]] = {0: (0.0, ())}
+    for _ in range(stints):
+        grown: dict[int, tuple[float, tuple[int, ...]]] = {}
+        for total, (cover, combo) in best.items():
+            for b in range(1, most + 1):
+                key, value = total + b, cover + caps[b]
+                if key not in grown or value > grown[key][0]:
+                    grown[key] = (value, combo + (b,))
+        best = grown
+    return tuple(
+        (t, cover, tuple(sorted(combo, reverse=True))) for t, (cover, combo) in sorted(best.items())
     )
+
+
+def _relay_split(drive_h: float, stints: int, rules: DrivingRules) -> tuple[int, tuple[float, ...]]:
+    """Fewest blocks that cover ``drive_h`` over ``stints`` drivers, and the stints' hours.
+
+    The stints are filled in turn up to their caps, the last taking what is left.
+    """
+    for total, cover, combo in _relay_table(rules, stints):
+        if drive_h / cover - _EPS <= 1.0:
+            left = drive_h
+            lengths = []
+            for b in combo:
+                t = min(_stint_cap(b, rules), left)
+                lengths.append(t)
+                left = max(0.0, left - t)
+            return total, tuple(lengths)
+    raise AssertionError(f"{stints} stints cannot cover {drive_h} h")  # stints chosen to fit
 
 
 def _breaks_in_array(
@@ -558,8 +619,13 @@ def time_legs(
         while todo.any():  # only when a duty window is tighter than the daily limit
             stints[todo] += 1
             todo[todo] = ~_one_driver_can_array(d[todo] / stints[todo], rules)
-        stint = d / stints
-        breaks = stints * _breaks_in_array(stint, rules) * rules.break_h
+        blocks = np.zeros(d.shape, dtype=np.int64)
+        for s in np.unique(stints[~one]):
+            rows = ~one & (stints == s)
+            for total, cover, _ in reversed(_relay_table(rules, int(s))):
+                fits = rows & (d / cover - _EPS <= 1.0)
+                blocks[fits] = total
+        breaks = np.where(one, breaks, (blocks - stints) * rules.break_h)
         relays = stints - 1
         allowed = np.ones(d.shape, dtype=np.bool_)
     transit = np.where(allowed, d + breaks + relays * float(relay_h), np.inf)

@@ -605,16 +605,17 @@ def test_a_late_direct_lane_is_not_used_even_when_cheaper() -> None:
 # EU, Regulation (EC) No 561/2006 (from memory): Art. 6(1) 9 h of daily
 # driving; Art. 7 a 45 min break after 4.5 h of driving.
 #   720 km = 9.0 h: one driver, one break: 9 + 0.75 = 9.75 h
-#   800 km = 10 h > 9 h: relay, 2 stints of 5 h, each with one break:
-#            10 + 2 x 0.75 + 1 change x 0.25 = 11.75 h
+#   800 km = 10 h > 9 h: relay, 2 stints: 9 h with one break, then 1 h
+#            with a fresh driver and none (two 5 h stints would take two):
+#            10 + 0.75 + 1 change x 0.25 = 11.0 h
 # US, 49 CFR 395.3 (from memory): (a)(3)(i) 11 h of driving; (a)(3)(ii) a
 # 30 min break after 8 h of driving; (a)(2) the 14 h duty window.
 #   800 km = 10 h: one driver, one break: 10.5 h (within 14 h)
 #   880 km = 11 h: one driver, one break: 11.5 h (within 14 h)
-#   960 km = 12 h > 11 h: relay, 2 stints of 6 h, no break: 12 + 0.25 = 12.25 h
+#   960 km = 12 h > 11 h: relay, 2 stints (8 h and 4 h), no break: 12 + 0.25 = 12.25 h
 HOURS_CASES = [
     ("eu", 720.0, 0, 9.75),
-    ("eu", 800.0, 1, 11.75),
+    ("eu", 800.0, 1, 11.0),
     ("us", 800.0, 0, 10.5),
     ("us", 880.0, 0, 11.5),
     ("us", 960.0, 1, 12.25),

@@ -114,24 +114,86 @@ def test_rounding_noise_at_a_limit_does_not_add_a_break_or_forbid() -> None:
     assert not time_leg(9.01, EU, "forbid", RELAY_H).allowed
 
 
-def test_eu_12h_relay_is_two_6h_stints_with_a_break_each() -> None:
-    # Art. 6(1): 12 h > 9 h; ceil(12 / 9) = 2 stints of 6 h, 1 driver change.
-    # Art. 7: each 6 h stint needs ceil(6 / 4.5) - 1 = 1 break: 2 x 0.75 = 1.5 h.
-    # Transit 12 + 1.5 + 1 x 0.25 = 13.75 h.
+def test_eu_12h_relay_is_a_full_day_and_the_rest() -> None:
+    # Art. 6(1): 12 h > 9 h; ceil(12 / 9) = 2 stints, 1 driver change.
+    # Art. 7: the first driver drives 9 h with ceil(9 / 4.5) - 1 = 1 break, the
+    # second, fresh, drives the last 3 h with none: 0.75 h of breaks. (Two equal
+    # 6 h stints would need a break each: 1.5 h.) Transit 12 + 0.75 + 0.25 = 13 h.
     t = time_leg(12.0, EU, "relay", RELAY_H)
     assert (t.allowed, t.drivers, t.relays) == (True, 1, 1)
-    assert t.breaks_h == pytest.approx(1.5)
-    assert t.transit_h == pytest.approx(13.75)
-    assert "2 stints of 6 h" in t.note
+    assert t.breaks_h == pytest.approx(0.75)
+    assert t.transit_h == pytest.approx(13.0)
+    assert "2 stints (9 h, 3 h)" in t.note
 
 
 def test_eu_19h_relay_is_three_stints() -> None:
-    # ceil(19 / 9) = 3 stints of 6.33 h (Art. 6(1)); each needs ceil(6.33 / 4.5) - 1 = 1
-    # break (Art. 7): 3 x 0.75 = 2.25 h; 2 changes. Transit 19 + 2.25 + 0.5 = 21.75 h.
+    # ceil(19 / 9) = 3 stints (Art. 6(1)). Stints of 9, 9 and 1 h take 1 + 1 + 0
+    # breaks (Art. 7): 1.5 h; no split does better, as 3 stints with one break in
+    # all cover at most 4.5 + 4.5 + 9 = 18 h < 19 h. 2 changes. Transit
+    # 19 + 1.5 + 0.5 = 21 h (equal stints of 6.33 h: a break each, 21.75 h).
     t = time_leg(19.0, EU, "relay", RELAY_H)
     assert (t.relays, t.drivers) == (2, 1)
-    assert t.breaks_h == pytest.approx(2.25)
-    assert t.transit_h == pytest.approx(21.75)
+    assert t.breaks_h == pytest.approx(1.5)
+    assert t.transit_h == pytest.approx(21.0)
+
+
+def test_us_20h_relay_needs_a_break_in_each_stint() -> None:
+    # 395.3(a)(3)(i): 20 h > 11 h, ceil(20 / 11) = 2 stints. 395.3(a)(3)(ii): a
+    # stint without a break lasts at most 8 h, so 8 + 11 = 19 h < 20 h and both
+    # stints need their 0.5 h break (11 h + 9 h): 1 h. Transit 20 + 1 + 0.25.
+    t = time_leg(20.0, US, "relay", RELAY_H)
+    assert (t.relays, t.breaks_h) == (1, pytest.approx(1.0))
+    assert t.transit_h == pytest.approx(21.25)
+    # 12 h: 8 h + 4 h, no break at all (Art. as above); transit 12.25 h.
+    assert time_leg(12.0, US, "relay", RELAY_H).breaks_h == 0.0
+
+
+def _fewest_breaks_by_grid(drive_h: float, stints: int, rules: DrivingRules) -> int:
+    """Fewest breaks over every split of ``drive_h`` into ``stints`` legal stints, on a 0.25 h grid.
+
+    Independent of hubnet's split: tries the lengths one by one (the last
+    stint takes the rest) and counts each stint's breaks from the rule's
+    limits directly.
+    """
+    step = 0.25
+    best = math.inf
+
+    def legal(t: float) -> int | None:
+        if t > rules.max_daily_driving_h + 1e-9:
+            return None
+        n = max(0, math.ceil(t / rules.max_driving_before_break_h - 1e-9) - 1)
+        window = rules.max_duty_window_h
+        if window is not None and t + n * rules.break_h > window + 1e-9:
+            return None
+        return n
+
+    def walk(left: float, k: int, spent: int) -> None:
+        nonlocal best
+        if k == 1:
+            n = legal(left)
+            if n is not None:
+                best = min(best, spent + n)
+            return
+        for i in range(1, int(round(left / step))):
+            t = i * step
+            n = legal(t)
+            if n is None:
+                break
+            walk(left - t, k - 1, spent + n)
+
+    walk(drive_h, stints, 0)
+    assert math.isfinite(best)
+    return int(best)
+
+
+@pytest.mark.parametrize("rules", [EU, US], ids=["eu", "us"])
+def test_relay_breaks_are_the_fewest_any_split_gives(rules: DrivingRules) -> None:
+    # The limits are the published ones (Art. 6(1) and 7 of Regulation (EC) No
+    # 561/2006; 49 CFR 395.3(a)(2), (a)(3)); the grid search above is the check.
+    for drive in np.arange(9.5, 30.0, 0.35):
+        t = time_leg(float(drive), rules, "relay", RELAY_H)
+        want = _fewest_breaks_by_grid(float(round(drive, 2)), t.relays + 1, rules)
+        assert t.breaks_h == pytest.approx(want * rules.break_h), (rules.name, drive)
 
 
 def test_eu_relay_at_twice_the_limit_is_two_full_days() -> None:
@@ -261,11 +323,11 @@ def test_time_legs_agrees_with_time_leg(tmp_path: Path) -> None:
 
 
 def test_time_legs_keeps_the_shape() -> None:
-    # [[5, 12], [19, 0]] h, EU relay: transit 5.75, 13.75, 21.75, 0 h (as in the
+    # [[5, 12], [19, 0]] h, EU relay: transit 5.75, 13, 21, 0 h (as in the
     # single-leg cases above).
     out = time_legs([[5.0, 12.0], [19.0, 0.0]], EU, "relay", RELAY_H)
     assert out.transit_h.shape == (2, 2)
-    np.testing.assert_allclose(out.transit_h, [[5.75, 13.75], [21.75, 0.0]])
+    np.testing.assert_allclose(out.transit_h, [[5.75, 13.0], [21.0, 0.0]])
     np.testing.assert_array_equal(out.relays, [[0, 1], [2, 0]])
     assert time_legs(12.0, EU, "forbid", RELAY_H).allowed.shape == ()
     with pytest.raises(ValueError):
