@@ -91,7 +91,7 @@ DEFAULT_TILES = "light"
 TIER_LAYERS: tuple[str, ...] = ("trunk", "feeder", "direct")
 TIER_WORDS: dict[str, str] = {
     "trunk": "Trunk legs (hub to hub)",
-    "feeder": "Feeder legs (terminal to hub, hub to terminal)",
+    "feeder": "Feeder legs (terminal to hub and back)",
     "direct": "Direct legs (terminal to terminal)",
 }
 
@@ -115,6 +115,9 @@ TRUNK_CASING_OPACITY = 0.85
 FEEDER_OPACITY_BY_CLASS = 0.6
 #: Radius in pixels of a terminal, and of a hub of no and of the largest throughput.
 TERMINAL_RADIUS_PX = 4.5
+#: Terminals carry name labels once this many or fewer are in view (zoomed
+#: in); more would cover the map with text (common practice, no source).
+TERMINAL_LABELS_IN_VIEW = 40
 HUB_MIN_RADIUS_PX = 7.0
 HUB_MAX_RADIUS_PX = 22.0
 #: How far a leg bends: the sideways offset of its middle, as a share of its length.
@@ -172,19 +175,28 @@ body, .leaflet-container { font: 13px/1.35 system-ui, -apple-system, "Segoe UI",
 .hn-label { background: rgba(255,255,255,0.8); border: none; box-shadow: none;
   padding: 0 3px; font-size: 12px; font-weight: 600; color: #1a1a1a; }
 .hn-label::before { display: none; }
+.hn-tlabel { font-weight: 400; font-size: 11px; background: rgba(255,255,255,0.7); }
 .hn-box table, .hn-pop table { border-collapse: collapse; }
 .hn-box th, .hn-pop th { text-align: left; font-weight: 500; color: #4a4f57;
   padding: 1px 10px 1px 0; vertical-align: top; white-space: nowrap; }
 .hn-box td, .hn-pop td { padding: 1px 0; overflow-wrap: anywhere; }
 .hn-legend { bottom: 64px; left: 10px; font-size: 12px; }
-/* Each box keeps to its half of the height (the legend clear of the scale bar),
-   scrolling when the window is too low for it. */
-.hn-head { max-height: calc(50vh - 20px); overflow-y: auto; box-sizing: border-box; }
-.hn-legend { max-height: calc(50vh - 74px); overflow-y: auto; box-sizing: border-box; }
+/* The headline box (top) and the legend (bottom) share the left column, clear
+   of the zoom buttons and the scale bar. Each takes the height it needs; when
+   the window is too low for both they shrink in proportion and scroll, and a
+   folded box leaves its room to the other. */
+.hn-side { position: absolute; z-index: 1000; top: 10px; bottom: 64px; left: 10px;
+  display: flex; flex-direction: column; justify-content: space-between; gap: 10px;
+  pointer-events: none; }
+.hn-side > .hn-box { position: static; pointer-events: auto; overflow-y: auto; min-height: 0;
+  flex: 0 1 auto; box-sizing: border-box; align-self: flex-start; max-width: min(370px, 32vw); }
+.hn-side > .hn-head { margin-left: 44px; }
 .hn-caution { color: #4a4f57; font-size: 11px; margin-top: 5px; }
 .hn-legend .hn-k { display: inline-block; width: 38px; text-align: center;
   vertical-align: middle; }
 .hn-legend div { margin: 1px 0; }
+.hn-legend .hn-row { display: flex; align-items: center; }
+.hn-legend .hn-row .hn-k { flex: none; }
 .hn-legend .hn-note { color: #4a4f57; margin-top: 4px; }
 .hn-pop h4 { margin: 0 0 4px 0; font-size: 13px; font-weight: 650; overflow-wrap: anywhere; }
 .hn-pop .hn-role { color: #4a4f57; margin-bottom: 4px; }
@@ -266,7 +278,11 @@ def _fit_class() -> type:
                     map.invalidateSize(false);
                     // leave the left column to the headline box and legend when the
                     // map is wide enough and they are open
-                    var left = ({{ this.reserve_left|tojson }} && box.clientWidth > 900) ? 350 : 30;
+                    var side = document.getElementById("hn-side");
+                    var left = 30;
+                    if ({{ this.reserve_left|tojson }} && box.clientWidth > 900 && side) {
+                        left = side.getBoundingClientRect().right + 10;
+                    }
                     map.fitBounds(bounds, {"paddingTopLeft": [left, 40],
                                            "paddingBottomRight": [90, 30]});
                 }
@@ -289,6 +305,66 @@ def _fit_class() -> type:
             self.reserve_left = reserve_left
 
     return _Fit
+
+
+def _terminal_labels_class() -> type:
+    """A folium element that names the terminals in view once few enough are.
+
+    A national map has over a hundred terminals: named all at once they
+    would bury the legs. When at most ``limit`` terminals lie in the view
+    (after each pan or zoom), each gets a permanent name label; otherwise
+    each keeps its hover tooltip. Markers and texts are given as (JavaScript
+    variable, label, tooltip); the texts are JSON string literals.
+    """
+    from jinja2 import Template
+
+    base = _macro_element()
+
+    class _TerminalLabels(base):  # type: ignore[misc,valid-type]
+        _template = Template(
+            """
+            {% macro script(this, kwargs) %}
+            (function () {
+                var map = {{ this._parent.get_name() }};
+                var marks = [{% for v, label, tip in this.marks %}
+                    [{{ v }}, {{ label|tojson }}, {{ tip|tojson }}],{% endfor %}
+                ];
+                var named = null;
+                function update() {
+                    var view = map.getBounds(), seen = 0;
+                    marks.forEach(function (m) {
+                        if (view.contains(m[0].getLatLng())) { seen++; }
+                    });
+                    var want = seen <= {{ this.limit }};
+                    if (want === named) { return; }
+                    named = want;
+                    marks.forEach(function (m) {
+                        m[0].unbindTooltip();
+                        if (want) {
+                            m[0].bindTooltip(m[1], {"permanent": true,
+                                "direction": "right", "offset": [{{ this.offset }}, 0],
+                                "className": "hn-label hn-tlabel"});
+                        } else {
+                            m[0].bindTooltip(m[2], {"sticky": true});
+                        }
+                    });
+                    map.getContainer().classList.toggle("hn-terminals-named", want);
+                }
+                map.on("moveend", update);
+                map.whenReady(update);
+            })();
+            {% endmacro %}
+            """
+        )
+
+        def __init__(self, marks: list[tuple[str, str, str]], limit: int) -> None:
+            super().__init__()
+            self._name = "TerminalLabels"
+            self.marks = marks
+            self.limit = int(limit)
+            self.offset = TERMINAL_RADIUS_PX + 1
+
+    return _TerminalLabels
 
 
 def _slug(text: str) -> str:
@@ -510,10 +586,11 @@ def _headline(run: RunData, note: str = "", *, open_box: bool = True) -> str:
         ("Cost per day", fmt_num(costs.get("total", s.get("objective")), 0)),
         ("Hubs", f"{len(hubs)}: {', '.join(map(str, hubs))}" if hubs else "none"),
         ("Status", status_text(s)),
-        ("Gap", fmt_gap(s.get("gap"))),
         ("Volume", f"{fmt_num(s.get('total_volume'))} {unit} per day"),
         ("Legs", leg_text or "none"),
     ]
+    if s.get("status") not in ("optimal", "time_limit") and number(s.get("gap")) is not None:
+        rows.insert(3, ("Gap", fmt_gap(s.get("gap"))))  # status_text gives it for these two
     for key, label, unit_text in (
         ("vehicles", "Vehicles", ""),
         ("vehicle_km", "Vehicle-km", "per day"),
@@ -585,7 +662,7 @@ def _legend(
         for cls, colour in classes.items():
             name = names.get(cls, "")
             text = f"{cls}: {name}" if name and name != cls else cls
-            parts.append(f"<div>{_line_key(colour, mid)}{esc(text)}</div>")
+            parts.append(f"<div class='hn-row'>{_line_key(colour, mid)}{esc(text)}</div>")
         if mixed:
             parts.append(
                 "<div class='hn-note'>Line colour: the vehicle class with most capacity "
@@ -594,32 +671,34 @@ def _legend(
         for tier in tiers:
             dash = DIRECT_DASH if tier == "direct" else None
             key = _line_key("#9aa0a6", 2, dash, cased=tier == "trunk")
-            parts.append(f"<div>{key}{esc(TIER_WORDS.get(tier, tier))}</div>")
+            parts.append(f"<div class='hn-row'>{key}{esc(TIER_WORDS.get(tier, tier))}</div>")
     else:
         for tier in tiers:
             word = TIER_WORDS.get(tier, f"{tier} legs")
             dash = DIRECT_DASH if tier == "direct" else None
-            parts.append(f"<div>{_line_key(tier_colour(tier), mid, dash)}{esc(word)}</div>")
+            parts.append(
+                f"<div class='hn-row'>{_line_key(tier_colour(tier), mid, dash)}{esc(word)}</div>"
+            )
     if empty_returns:
         parts.append(
-            f"<div>{_line_key('#555', EMPTY_WIDTH_PX, EMPTY_DASH)}Empty return (no load)</div>"
+            f"<div class='hn-row'>{_line_key('#555', EMPTY_WIDTH_PX, EMPTY_DASH)}"
+            "Empty return (no load)</div>"
         )
     if largest_volume > 0:
         small = largest_volume / 10
         parts.append(
-            f"<div>{_line_key('#555', _width(small, largest_volume))}"
-            f"{esc(fmt_num(small, 0))} {esc(unit)} per day</div>"
-            f"<div>{_line_key('#555', MAX_WIDTH_PX)}"
-            f"{esc(fmt_num(largest_volume, 0))} {esc(unit)} per day</div>"
+            f"<div class='hn-row'>{_line_key('#555', _width(small, largest_volume))}"
+            f"<span>{esc(fmt_num(small, 0))} to</span>{_line_key('#555', MAX_WIDTH_PX)}"
+            f"<span>{esc(fmt_num(largest_volume, 0))} {esc(unit)} per day</span></div>"
         )
     parts.append(
-        f"<div>{_circle_key(9, HUB_COLOUR)}Hub, area by throughput</div>"
-        f"<div class='hn-note'>Largest hub: {esc(fmt_num(largest_throughput, 0))} "
-        f"{esc(unit)} per day</div>"
-        f"<div>{_circle_key(TERMINAL_RADIUS_PX, TERMINAL_FILL)}Terminal</div>"
+        f"<div class='hn-row'>{_circle_key(9, HUB_COLOUR)}Hub, area by throughput (largest "
+        f"{esc(fmt_num(largest_throughput, 0))} {esc(unit)} per day)</div>"
+        f"<div class='hn-row'>{_circle_key(TERMINAL_RADIUS_PX, TERMINAL_FILL)}Terminal "
+        f"(named once {TERMINAL_LABELS_IN_VIEW} or fewer are in view)</div>"
         "<div class='hn-note'>Each leg bends to the right of its direction of travel, "
-        "so the two directions of a lane are drawn side by side.</div>"
-        "<div class='hn-note'>Click a line or a circle for its figures.</div></details>"
+        "so the two directions of a lane are drawn side by side. Click a line or a "
+        "circle for its figures.</div></details>"
     )
     return "".join(parts)
 
@@ -841,7 +920,8 @@ def build_map(run: RunData, *, tiles: str = DEFAULT_TILES, compact: bool = False
             line.add_to(group)
         group.add_to(m)
 
-    # Sites: hubs sized by throughput, terminals small; hubs drawn last (on top).
+    # Sites: hubs sized by throughput, terminals small and drawn last (on top),
+    # so a terminal next to a large hub stays in sight and can be clicked.
     hub_rows = {str(h["hub_id"]): h for h in _records(hubs)} if "hub_id" in hubs else {}
     throughputs = [number(h.get("throughput_per_day")) or 0.0 for h in hub_rows.values()]
     largest_throughput = max(throughputs, default=0.0)
@@ -866,7 +946,8 @@ def build_map(run: RunData, *, tiles: str = DEFAULT_TILES, compact: bool = False
             for i, c in zip(sites["id"], sites["candidate_hub"], strict=True)
         }
     group = folium.FeatureGroup(name=f"Hubs ({len(hub_rows)}) and terminals")
-    order = [s for s in where if s not in hub_rows] + [s for s in hub_rows if s in where]
+    order = [s for s in hub_rows if s in where] + [s for s in where if s not in hub_rows]
+    terminal_marks: list[tuple[str, str, str]] = []
     for site_id in order:
         site_hub = hub_rows.get(site_id)
         name = names.get(site_id, "")
@@ -903,9 +984,13 @@ def build_map(run: RunData, *, tiles: str = DEFAULT_TILES, compact: bool = False
         if site_hub is not None:  # hubs carry a permanent name label
             bind(popup, esc(name or site_id), label_offset=radius + 1).add_to(marker)
         else:
-            bind(popup, esc(f"{_site_label(site_id, names)} ({role})")).add_to(marker)
+            tip = esc(f"{_site_label(site_id, names)} ({role})")
+            bind(popup, tip).add_to(marker)
+            terminal_marks.append((marker.get_name(), esc(name or site_id), tip))
         marker.add_to(group)
     group.add_to(m)
+    if terminal_marks:
+        _terminal_labels_class()(terminal_marks, TERMINAL_LABELS_IN_VIEW).add_to(m)
 
     folium.LayerControl(collapsed=False, position="topright").add_to(m)
     ys = [p[0] for p in where.values()]
@@ -926,20 +1011,21 @@ def build_map(run: RunData, *, tiles: str = DEFAULT_TILES, compact: bool = False
             f"<div class='hn-desc'>{missing} leg(s) not drawn: "
             "their sites have no coordinates.</div>"
         )
-    root.html.add_child(Element(_headline(run, note, open_box=not compact)))
+    legend = _legend(
+        tiers,
+        class_colours,
+        largest_volume,
+        largest_throughput,
+        unit,
+        open_box=not compact,
+        class_names=class_names,
+        mixed=mixed,
+        empty_returns=empty > 0,
+    )
     root.html.add_child(
         Element(
-            _legend(
-                tiers,
-                class_colours,
-                largest_volume,
-                largest_throughput,
-                unit,
-                open_box=not compact,
-                class_names=class_names,
-                mixed=mixed,
-                empty_returns=empty > 0,
-            )
+            f"<div class='hn-side' id='hn-side'>"
+            f"{_headline(run, note, open_box=not compact)}{legend}</div>"
         )
     )
     return m
