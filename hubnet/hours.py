@@ -525,37 +525,46 @@ def _relay_table(
     """
     most = max(1, math.ceil(rules.max_daily_driving_h / rules.max_driving_before_break_h - _EPS))
     caps = [_stint_cap(b, rules) for b in range(most + 1)]
-    # best[total] = (cover, blocks per stint) over the stints so far: a knapsack
-    # by dynamic programming (small: stints x total x most steps).
-    best: dict[int, tuple[float, tuple[int, ...]]] = {0: (0.0, ())}
+    # best[total] = (cover, how many stints have 1, 2, ... most blocks): a knapsack
+    # by dynamic programming over the stints (stints x total x most steps).
+    best: dict[int, tuple[float, tuple[int, ...]]] = {0: (0.0, (0,) * most)}
     for _ in range(stints):
         grown: dict[int, tuple[float, tuple[int, ...]]] = {}
-        for total, (cover, combo) in best.items():
+        for total, (cover, counts) in best.items():
             for b in range(1, most + 1):
                 key, value = total + b, cover + caps[b]
                 if key not in grown or value > grown[key][0]:
-                    grown[key] = (value, combo + (b,))
+                    more = counts[: b - 1] + (counts[b - 1] + 1,) + counts[b:]
+                    grown[key] = (value, more)
         best = grown
-    return tuple(
-        (t, cover, tuple(sorted(combo, reverse=True))) for t, (cover, combo) in sorted(best.items())
-    )
+    table = []
+    for total, (cover, counts) in sorted(best.items()):
+        combo = tuple(b for b in range(most, 0, -1) for _ in range(counts[b - 1]))
+        table.append((total, cover, combo))
+    return tuple(table)
+
+
+def _covers(drive_h: float, cover: float) -> bool:
+    """Whether ``cover`` hours hold ``drive_h``, within the tolerances of the one-driver checks."""
+    return drive_h <= cover * (1.0 + _EPS) + _EPS
 
 
 def _relay_split(drive_h: float, stints: int, rules: DrivingRules) -> tuple[int, tuple[float, ...]]:
     """Fewest blocks that cover ``drive_h`` over ``stints`` drivers, and the stints' hours.
 
-    The stints are filled in turn up to their caps, the last taking what is left.
+    The stints are filled in turn up to their caps, the last taking what is
+    left. ``stints`` one-driver stints fit ``drive_h`` (the caller's check),
+    so the split with most blocks is the fallback against rounding.
     """
-    for total, cover, combo in _relay_table(rules, stints):
-        if drive_h / cover - _EPS <= 1.0:
-            left = drive_h
-            lengths = []
-            for b in combo:
-                t = min(_stint_cap(b, rules), left)
-                lengths.append(t)
-                left = max(0.0, left - t)
-            return total, tuple(lengths)
-    raise AssertionError(f"{stints} stints cannot cover {drive_h} h")  # stints chosen to fit
+    table = _relay_table(rules, stints)
+    total, _, combo = next((e for e in table if _covers(drive_h, e[1])), table[-1])
+    left = drive_h
+    lengths = []
+    for b in combo:
+        t = min(_stint_cap(b, rules), left)
+        lengths.append(t)
+        left = max(0.0, left - t)
+    return total, tuple(lengths)
 
 
 def _breaks_in_array(
@@ -619,11 +628,13 @@ def time_legs(
         while todo.any():  # only when a duty window is tighter than the daily limit
             stints[todo] += 1
             todo[todo] = ~_one_driver_can_array(d[todo] / stints[todo], rules)
-        blocks = np.zeros(d.shape, dtype=np.int64)
+        blocks = stints.copy()  # one-driver rows: unused
         for s in np.unique(stints[~one]):
             rows = ~one & (stints == s)
-            for total, cover, _ in reversed(_relay_table(rules, int(s))):
-                fits = rows & (d / cover - _EPS <= 1.0)
+            table = _relay_table(rules, int(s))
+            blocks[rows] = table[-1][0]  # the fallback of _relay_split
+            for total, cover, _ in reversed(table):
+                fits = rows & (d <= cover * (1.0 + _EPS) + _EPS)
                 blocks[fits] = total
         breaks = np.where(one, breaks, (blocks - stints) * rules.break_h)
         relays = stints - 1

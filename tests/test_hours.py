@@ -148,14 +148,15 @@ def test_us_20h_relay_needs_a_break_in_each_stint() -> None:
     assert time_leg(12.0, US, "relay", RELAY_H).breaks_h == 0.0
 
 
-def _fewest_breaks_by_grid(drive_h: float, stints: int, rules: DrivingRules) -> int:
-    """Fewest breaks over every split of ``drive_h`` into ``stints`` legal stints, on a 0.25 h grid.
+def _fewest_breaks_by_grid(
+    drive_h: float, stints: int, rules: DrivingRules, step: float = 0.25
+) -> int:
+    """Fewest breaks over every split of ``drive_h`` into ``stints`` legal stints, on a grid.
 
     Independent of hubnet's split: tries the lengths one by one (the last
     stint takes the rest) and counts each stint's breaks from the rule's
     limits directly.
     """
-    step = 0.25
     best = math.inf
 
     def legal(t: float) -> int | None:
@@ -288,11 +289,48 @@ def test_a_tight_duty_window_limits_one_driver_and_adds_stints(tmp_path: Path) -
     t = time_leg(10.9, rules, "forbid", RELAY_H)
     assert not t.allowed
     assert "duty window" in t.note and "11.2 h" in t.note
-    # Relay: ceil(10.9 / 11) = 1 stint does not fit, so 2 stints of 5.45 h, no break
-    # each (ceil(5.45 / 8) - 1 = 0); transit 10.9 + 0.25 = 11.15 h.
+    # Relay: ceil(10.9 / 11) = 1 stint does not fit, so 2 stints (8 h and 2.9 h), no
+    # break in either (ceil(8 / 8) - 1 = 0); transit 10.9 + 0.25 = 11.15 h.
     r = time_leg(10.9, rules, "relay", RELAY_H)
     assert (r.allowed, r.relays, r.breaks_h) == (True, 1, 0.0)
     assert r.transit_h == pytest.approx(11.15)
+
+
+ODD_LIMITS = """\
+name = "odd limits"
+max_driving_before_break_h = 3.3
+break_h = 0.5
+max_daily_driving_h = 10
+max_duty_window_h = 11
+"""
+
+
+@pytest.mark.parametrize("text", [TIGHT_WINDOW, ODD_LIMITS], ids=["tight-window", "odd-limits"])
+def test_relay_breaks_are_the_fewest_under_a_tight_duty_window(tmp_path: Path, text: str) -> None:
+    # Hand-made limits (no source) where the duty window, not the daily limit,
+    # bounds a stint: 10.7 h with one break (tight window), 9.9 h with two (odd
+    # limits: 10 h would need three, 11.5 h on duty). Two stints each; the grid
+    # search (0.05 h, as 10.7 and 3.3 are not multiples of 0.25) is the check.
+    rules = load_rules(_write(tmp_path, text))
+    for drive in np.arange(11.0, 19.7, 0.3):
+        t = time_leg(float(drive), rules, "relay", RELAY_H)
+        assert t.relays == 1
+        want = _fewest_breaks_by_grid(float(round(drive, 2)), 2, rules, step=0.05)
+        assert t.breaks_h == pytest.approx(want * rules.break_h), (rules.name, drive)
+        many = time_legs([float(drive)], rules, "relay", RELAY_H)
+        assert many.breaks_h[0] == pytest.approx(t.breaks_h)
+
+
+def test_relay_within_rounding_noise_of_a_window_is_timed_not_refused() -> None:
+    # Hand-made limits (no source): a 0.3 h duty window, so each stint is at most
+    # 0.3 h; 0.6 h + 1e-9 fits two stints within the one-driver check's tolerance.
+    # Both timings must agree, with no negative break time (a review found the
+    # vectorised one giving -1.5 h here).
+    rules = DrivingRules("tiny window", "hand-made", 4.5, 0.75, 9.0, 0.3)
+    t = time_leg(0.6 + 1e-9, rules, "relay", RELAY_H)
+    many = time_legs([0.6 + 1e-9], rules, "relay", RELAY_H)
+    assert (t.relays, t.breaks_h) == (1, 0.0)
+    assert (int(many.relays[0]), float(many.breaks_h[0])) == (1, 0.0)
 
 
 # --------------------------------------------------------------------------- many legs
