@@ -190,7 +190,7 @@ body, .leaflet-container { font: 13px/1.35 system-ui, -apple-system, "Segoe UI",
   pointer-events: none; }
 .hn-side > .hn-box { position: static; pointer-events: auto; overflow-y: auto; min-height: 0;
   flex: 0 1 auto; box-sizing: border-box; align-self: flex-start; max-width: min(370px, 32vw); }
-.hn-side > .hn-head { margin-left: 44px; }
+.hn-side > .hn-box { margin-left: 44px; }
 .hn-caution { color: #4a4f57; font-size: 11px; margin-top: 5px; }
 .hn-legend .hn-k { display: inline-block; width: 38px; text-align: center;
   vertical-align: middle; }
@@ -312,9 +312,10 @@ def _terminal_labels_class() -> type:
 
     A national map has over a hundred terminals: named all at once they
     would bury the legs. When at most ``limit`` terminals lie in the view
-    (after each pan or zoom), each gets a permanent name label; otherwise
-    each keeps its hover tooltip. Markers and texts are given as (JavaScript
-    variable, label, tooltip); the texts are JSON string literals.
+    (after each pan or zoom), those in view get a permanent name label; the
+    others, and all of them when more are in view, keep their hover tooltip.
+    Markers and texts are given as (JavaScript variable, label, tooltip); the
+    texts are JSON string literals.
     """
     from jinja2 import Template
 
@@ -330,25 +331,33 @@ def _terminal_labels_class() -> type:
                     [{{ v }}, {{ label|tojson }}, {{ tip|tojson }}],{% endfor %}
                 ];
                 var named = null;
+                var shown = marks.map(function () { return "tip"; });
+                function show(i, how) {
+                    if (shown[i] === how) { return; }
+                    shown[i] = how;
+                    var m = marks[i];
+                    m[0].unbindTooltip();
+                    if (how === "label") {
+                        m[0].bindTooltip(m[1], {"permanent": true,
+                            "direction": "right", "offset": [{{ this.offset }}, 0],
+                            "className": "hn-label hn-tlabel"});
+                    } else {
+                        m[0].bindTooltip(m[2], {"sticky": true});
+                    }
+                }
                 function update() {
-                    var view = map.getBounds(), seen = 0;
-                    marks.forEach(function (m) {
-                        if (view.contains(m[0].getLatLng())) { seen++; }
+                    var view = map.getBounds();
+                    var inside = marks.map(function (m) {
+                        return view.contains(m[0].getLatLng());
                     });
-                    var want = seen <= {{ this.limit }};
-                    if (want === named) { return; }
-                    named = want;
-                    marks.forEach(function (m) {
-                        m[0].unbindTooltip();
-                        if (want) {
-                            m[0].bindTooltip(m[1], {"permanent": true,
-                                "direction": "right", "offset": [{{ this.offset }}, 0],
-                                "className": "hn-label hn-tlabel"});
-                        } else {
-                            m[0].bindTooltip(m[2], {"sticky": true});
-                        }
+                    var seen = inside.filter(Boolean).length;
+                    named = seen <= {{ this.limit }};
+                    // only the terminals in view carry a label: a large network
+                    // keeps no off-screen labels to move at every zoom
+                    marks.forEach(function (m, i) {
+                        show(i, named && inside[i] ? "label" : "tip");
                     });
-                    map.getContainer().classList.toggle("hn-terminals-named", want);
+                    map.getContainer().classList.toggle("hn-terminals-named", named);
                 }
                 map.on("moveend", update);
                 map.whenReady(update);
