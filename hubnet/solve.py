@@ -17,7 +17,7 @@ import shutil
 import tempfile
 import threading
 import time
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path
 
 import highspy
@@ -248,7 +248,9 @@ class _LogWatcher(threading.Thread):
                     continue
 
 
-def _highs(opts: SolverParams, log_path: str, progress: Progress) -> pulp.LpSolver:
+def _highs(
+    opts: SolverParams, log_path: str, progress: Progress, extra: Mapping[str, float] | None = None
+) -> pulp.LpSolver:
     return _HighsWithStart(
         log_path=log_path,
         progress=progress,
@@ -257,6 +259,7 @@ def _highs(opts: SolverParams, log_path: str, progress: Progress) -> pulp.LpSolv
         gapRel=opts.gap,
         threads=opts.threads,
         mip_abs_gap=0.0,
+        **(extra or {}),
     )
 
 
@@ -289,11 +292,13 @@ def run_solver(
     opts: SolverParams,
     progress: Progress = _quiet,
     cbc_options: Sequence[str] = (),
+    highs_options: Mapping[str, float] | None = None,
 ) -> SolveStats:
     """Run the chosen solver on a built model.
 
     ``cbc_options`` are extra CBC command-line options (for example
-    ``"preprocess on"``), used only when CBC solves.
+    ``"preprocess on"``), used only when CBC solves; ``highs_options`` are
+    extra HiGHS options (name to value), used only when HiGHS solves.
 
     Returns
     -------
@@ -320,7 +325,7 @@ def run_solver(
             raise SolverError("HiGHS is not available: pip install highspy")
         use_threads(opts.threads)
         try:
-            prob.solve(_highs(opts, log_path, progress))
+            prob.solve(_highs(opts, log_path, progress, highs_options))
             log_text = Path(log_path).read_text(errors="replace")
         finally:
             Path(log_path).unlink(missing_ok=True)
