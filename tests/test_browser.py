@@ -589,6 +589,13 @@ def test_terminals_are_named_once_few_are_in_view(browser: Any, many: Path) -> N
         "return [...document.querySelectorAll('.hn-tlabel')].map(e => e.textContent);"
     )
     assert row["name"] in names
+    # hub names are drawn above terminal names (a new user found Lille's, Lyon's
+    # and Nantes's hidden under them)
+    z = browser.execute_script(
+        "const z = q => Number(getComputedStyle(document.querySelector(q)).zIndex);"
+        "return [z('.hn-label:not(.hn-tlabel)'), z('.hn-tlabel')];"
+    )
+    assert z[0] > z[1]
     # back out: the labels go, the hover tooltips come back
     browser.execute_script(f"{THE_MAP}.setZoom(5, {{animate: false}});")
     wait_for(lambda: count(browser, ".hn-tlabel") == 0)

@@ -73,6 +73,25 @@ def test_map_carries_the_regulations_caution(run_dir: Path) -> None:
     assert "local regulations" in MAP_CAUTION and "Drivers' hours" in MAP_CAUTION
 
 
+def test_caution_comes_before_the_figures(run_dir: Path) -> None:
+    # On a low window the headline box scrolls: the caution sits right under the
+    # title, so it is never the part scrolled out of sight (a new user's trial).
+    page = html.unescape((run_dir / "map.html").read_text())
+    head = page[page.index("id='hn-headline'") :]
+    assert head.index(MAP_CAUTION) < head.index("Cost per day")
+
+
+def test_width_key_runs_from_the_smallest_leg_to_the_largest(run_dir: Path) -> None:
+    # A new user read "117 to 1,171 pallets per day" as the range of leg volumes
+    # while the smallest leg carried 60: the key now starts at the smallest leg.
+    volumes = read_table(run_dir / "legs.csv")["volume_per_day"].astype(float)
+    low, high = volumes[volumes > 0].min(), volumes.max()
+    assert 0 < low < high
+    page = html.unescape((run_dir / "map.html").read_text())
+    legend = page[page.index("id='hn-legend'") :]
+    assert f"{low:,.0f} to" in legend and f"{high:,.0f} pallets per day" in legend
+
+
 def test_map_loads_no_script_or_stylesheet_from_anywhere(run_dir: Path) -> None:
     page = (run_dir / "map.html").read_text(encoding="utf-8")
     assert scripts_and_links(page) == []

@@ -117,7 +117,7 @@ FEEDER_OPACITY_BY_CLASS = 0.6
 TERMINAL_RADIUS_PX = 4.5
 #: Terminals carry name labels once this many or fewer are in view (zoomed
 #: in); more would cover the map with text (common practice, no source).
-TERMINAL_LABELS_IN_VIEW = 40
+TERMINAL_LABELS_IN_VIEW = 30
 HUB_MIN_RADIUS_PX = 7.0
 HUB_MAX_RADIUS_PX = 22.0
 #: How far a leg bends: the sideways offset of its middle, as a share of its length.
@@ -175,7 +175,9 @@ body, .leaflet-container { font: 13px/1.35 system-ui, -apple-system, "Segoe UI",
 .hn-label { background: rgba(255,255,255,0.8); border: none; box-shadow: none;
   padding: 0 3px; font-size: 12px; font-weight: 600; color: #1a1a1a; }
 .hn-label::before { display: none; }
-.hn-tlabel { font-weight: 400; font-size: 11px; background: rgba(255,255,255,0.7); }
+.hn-label { z-index: 2; }
+/* terminal names below the hubs' (a new user found hub names hidden under them) */
+.hn-tlabel { font-weight: 400; font-size: 11px; background: rgba(255,255,255,0.7); z-index: 1; }
 .hn-box table, .hn-pop table { border-collapse: collapse; }
 .hn-box th, .hn-pop th { text-align: left; font-weight: 500; color: #4a4f57;
   padding: 1px 10px 1px 0; vertical-align: top; white-space: nowrap; }
@@ -191,7 +193,7 @@ body, .leaflet-container { font: 13px/1.35 system-ui, -apple-system, "Segoe UI",
 .hn-side > .hn-box { position: static; pointer-events: auto; overflow-y: auto; min-height: 0;
   flex: 0 1 auto; box-sizing: border-box; align-self: flex-start; max-width: min(370px, 32vw); }
 .hn-side > .hn-box { margin-left: 44px; }
-.hn-caution { color: #4a4f57; font-size: 11px; margin-top: 5px; }
+.hn-caution { color: #4a4f57; font-size: 11px; margin: 0 0 5px 0; }
 .hn-legend .hn-k { display: inline-block; width: 38px; text-align: center;
   vertical-align: middle; }
 .hn-legend div { margin: 1px 0; }
@@ -614,7 +616,8 @@ def _headline(run: RunData, note: str = "", *, open_box: bool = True) -> str:
     return (
         f"<details{' open' if open_box else ''} class='hn-box hn-head{warn}' id='hn-headline'>"
         f"<summary class='hn-title'>{esc(run.scenario)}</summary>{desc}"
-        f"<table>{_rows(rows)}</table>{note}<div class='hn-caution'>{esc(MAP_CAUTION)}</div>"
+        f"<div class='hn-caution'>{esc(MAP_CAUTION)}</div>"
+        f"<table>{_rows(rows)}</table>{note}"
         "</details>"
     )
 
@@ -654,8 +657,12 @@ def _legend(
     class_names: Mapping[str, str] | None = None,
     mixed: bool = False,
     empty_returns: bool = False,
+    smallest_volume: float = 0.0,
 ) -> str:
     """The legend box: line colours, widths, site symbols and how legs are drawn.
+
+    The width key runs from ``smallest_volume`` (the smallest leg's volume,
+    when given) to ``largest_volume``.
 
     With vehicle classes, one entry per class (``id: name`` when the
     summary names it), a note on legs shared by classes (``mixed``) and an
@@ -694,7 +701,7 @@ def _legend(
             "Empty return (no load)</div>"
         )
     if largest_volume > 0:
-        small = largest_volume / 10
+        small = smallest_volume if 0 < smallest_volume < largest_volume else largest_volume / 10
         parts.append(
             f"<div class='hn-row'>{_line_key('#555', _width(small, largest_volume))}"
             f"<span>{esc(fmt_num(small, 0))} to</span>{_line_key('#555', MAX_WIDTH_PX)}"
@@ -865,6 +872,7 @@ def build_map(run: RunData, *, tiles: str = DEFAULT_TILES, compact: bool = False
     empty = 0
     volumes = [number(v) or 0.0 for v in legs.get("volume_per_day", [])]
     largest_volume = max(volumes, default=0.0)
+    smallest_volume = min((v for v in volumes if v > 0), default=0.0)
     leg_records = _records(legs)
     tiers = [t for t in TIER_LAYERS if any(r.get("tier") == t for r in leg_records)]
     tiers += sorted({str(r.get("tier")) for r in leg_records} - set(tiers))
@@ -1030,6 +1038,7 @@ def build_map(run: RunData, *, tiles: str = DEFAULT_TILES, compact: bool = False
         class_names=class_names,
         mixed=mixed,
         empty_returns=empty > 0,
+        smallest_volume=smallest_volume,
     )
     root.html.add_child(
         Element(

@@ -83,10 +83,11 @@ STANDING_CAUTIONS: tuple[str, ...] = (
     "the input data and parameters, and it must be reviewed by people who know the "
     "network before it is acted on.",
     "Drivers' hours, vehicle weights and vehicle dimensions are governed by the "
-    "regulations where the vehicles run, and hubnet does not guarantee compliance: it "
-    "applies only the daily driving and break limits of the rule set chosen, and does "
-    "not check weights or dimensions. Confirm that every leg and vehicle of the plan "
-    "complies with your local regulations before acting on it.",
+    "regulations where the vehicles run, and hubnet does not guarantee compliance. With "
+    "vehicle classes it applies only the daily driving and break limits of the rule set "
+    "chosen and each class's payload limits (in units, and in kg or m3 where given); it "
+    "does not check gross or axle weights or vehicle dimensions. Confirm that every leg "
+    "and vehicle of the plan complies with your local regulations before acting on it.",
 )
 
 
