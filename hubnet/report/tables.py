@@ -68,7 +68,8 @@ COLUMNS: dict[str, dict[str, str]] = {
     "legs": {
         "tier": (
             "trunk (hub to hub), feeder (terminal to hub or hub to terminal) "
-            "or direct (terminal to terminal)."
+            "or direct (site to site, unsorted: a pair's own freight; it may join two hub "
+            "sites, beside the trunk that carries the sorted freight between them)."
         ),
         "from_site": "Site id where the leg starts.",
         "to_site": "Site id where the leg ends.",
