@@ -336,6 +336,14 @@ class _Setup:
     trunk_ok: np.ndarray  # (n, n) bool
     late: dict[tuple[int, int], np.ndarray] = field(default_factory=dict)
 
+    def fastest(self, tier: str) -> np.ndarray:
+        """``(n, n)`` hours of the tier's directed legs on their fastest allowed class."""
+        return {"feeder": self.feeder_t, "trunk": self.trunk_t, "direct": self.direct_t}[tier]
+
+    def sorts(self, k: int, m: int) -> float:
+        """Sort hours of a route through hubs ``k`` then ``m`` (``k == m``: one hub)."""
+        return float(self.sort[k] + (self.sort[m] if m != k else 0.0))
+
 
 def _direction_ok(tables: LegTables, tier: Tier, round_trips: bool) -> np.ndarray:
     n = tables.km.shape[0]
@@ -1147,7 +1155,7 @@ def build_freight_model(
                 for s_, t_ in ((a, b), (b, a)) if rt else ((a, b),):
                     if (s_, t_) in direct:
                         directed.append((s_, t_, {direct[s_, t_]: float(w[s_, t_])}))
-            base_table = {"feeder": st.feeder_t, "trunk": st.trunk_t, "direct": st.direct_t}[tier]
+            base_table = st.fastest(tier)
             most = levels.most(lane)
             for s_, t_, volume in directed:
                 if not volume:
@@ -1175,8 +1183,7 @@ def build_freight_model(
             return None, [0.0]
         lane = _leg_lane(rt, tier, s, t, into)
         if not levels.shape(lane):  # no class runs it
-            table = st.feeder_t if tier == "feeder" else st.trunk_t
-            return None, [float(table[s, t])]
+            return None, [float(st.fastest(tier)[s, t])]
         return (lane if levels.levels(lane) is not None else None), levels.hours(lane, s, t)
 
     def first_late(hours: list[float], budget: float) -> float | None:
@@ -1244,7 +1251,7 @@ def build_freight_model(
                 for m in ms:
                     t_lane, t_hours = leg_hours("trunk", k, m, True)
                     d_lane, d_hours = leg_hours("feeder", m, j, False)
-                    budget = limit - h1 - float(st.sort[k] + (st.sort[m] if k != m else 0.0))
+                    budget = limit - h1 - st.sorts(k, m)
                     h3 = first_late(d_hours, budget - t_hours[0])
                     if h3 is not None:
                         ends += at_level(d_lane, (m, j), h3, d_hours[0], x[j, m])
@@ -1413,13 +1420,12 @@ def evaluate_freight(
     # fall short of 1 by a speck that no vehicle covers; such specks go direct.
     speck = 1e-5 * max(1.0, float(w.sum()))
     runs = _runs(plan, fp, tables)
-    fastest = {"feeder": st.feeder_t, "trunk": st.trunk_t, "direct": st.direct_t}
 
     def run_hours(tier: str, s: int, t: int) -> float:
         """Hours of the run s -> t: its slowest class run (a millionth of a vehicle is none)."""
         used = [c for c, (n, _) in runs.get((tier, s, t), {}).items() if n > 1e-6]
         if not used:
-            return float(fastest[tier][s, t])
+            return float(st.fastest(tier)[s, t])
         return max(float(tables.transit_h[c, s, t]) for c in used)
 
     rows, cols = np.nonzero(w)
@@ -1443,7 +1449,7 @@ def evaluate_freight(
             legs_used.append(("trunk", k, m))
         if m != j:
             legs_used.append(("feeder", m, j))
-        sorts = float(st.sort[k] + (st.sort[m] if m != k else 0.0))
+        sorts = st.sorts(k, m)
         t = sorts
         for key in legs_used:
             flows[key] += hv
@@ -2267,11 +2273,7 @@ def starting_freight_plan(
     for i, j, used in legs_of:
         if used and used[0][0][0] != "direct":
             k, m = int(assign[i]), int(assign[j])
-            budget = (
-                float(st.allow[i, j])
-                + TIME_TOLERANCE_H
-                - float(st.sort[k] + (st.sort[m] if k != m else 0.0))
-            )
+            budget = float(st.allow[i, j]) + TIME_TOLERANCE_H - st.sorts(k, m)
         else:
             budget = float(st.allow[i, j]) + TIME_TOLERANCE_H
         if sum(hours_at[leg][at[leg[0]]] for leg in used) > budget:

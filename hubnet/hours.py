@@ -52,7 +52,7 @@ from functools import cache
 from importlib import resources
 from pathlib import Path
 from types import MappingProxyType
-from typing import Any, NamedTuple
+from typing import Any, NamedTuple, overload
 
 import numpy as np
 import numpy.typing as npt
@@ -544,8 +544,16 @@ def _relay_table(
     return tuple(table)
 
 
-def _covers(drive_h: float, cover: float) -> bool:
-    """Whether ``cover`` hours hold ``drive_h``, within the tolerances of the one-driver checks."""
+@overload
+def _covers(drive_h: float, cover: float) -> bool: ...
+@overload
+def _covers(drive_h: npt.NDArray[np.float64], cover: float) -> npt.NDArray[np.bool_]: ...
+def _covers(drive_h: float | npt.NDArray[np.float64], cover: float) -> bool | npt.NDArray[np.bool_]:
+    """Whether ``cover`` hours hold ``drive_h`` (hours, or an array of them).
+
+    Within the tolerances of the one-driver checks; :func:`time_leg` and
+    :func:`time_legs` share it.
+    """
     return drive_h <= cover * (1.0 + _EPS) + _EPS
 
 
@@ -634,7 +642,7 @@ def time_legs(
             table = _relay_table(rules, int(s))
             blocks[rows] = table[-1][0]  # the fallback of _relay_split
             for total, cover, _ in reversed(table):
-                fits = rows & (d <= cover * (1.0 + _EPS) + _EPS)
+                fits = rows & _covers(d, cover)
                 blocks[fits] = total
         breaks = np.where(one, breaks, (blocks - stints) * rules.break_h)
         relays = stints - 1
