@@ -615,6 +615,34 @@ def test_no_terminal_is_hidden_under_a_hub(browser: Any, many: Path) -> None:
     assert covered == 0
 
 
+#: Sites (hubs and terminals) whose centre lies under one of the map's boxes.
+SITES_UNDER_BOXES = """
+const boxes = ['#hn-headline', '#hn-legend', '.leaflet-control-layers',
+  '.leaflet-control-zoom', '.leaflet-control-scale']
+  .map(q => document.querySelector(q).getBoundingClientRect());
+return [...document.querySelectorAll('path.hubnet-site')].filter(s => {
+  const r = s.getBoundingClientRect();
+  const x = r.left + r.width / 2, y = r.top + r.height / 2;
+  return boxes.some(b => x >= b.left && x <= b.right && y >= b.top && y <= b.bottom);
+}).map(s => s.getAttribute('class'));
+"""
+
+
+@pytest.mark.parametrize("size", [(1024, 640), (1400, 900)])
+def test_no_site_starts_under_a_box(browser: Any, many: Path, size: tuple[int, int]) -> None:
+    # A new user's trial at 1024 x 640 (a laptop window; common practice, no
+    # source) found the layer switch over Lille, a hub near the top right of the
+    # country: the first view now keeps every site clear of every box.
+    browser.set_window_size(*size)
+    try:
+        open_page(browser, many / "map.html")
+        under = browser.execute_script(SITES_UNDER_BOXES)
+    finally:
+        browser.set_window_size(1400, 900)
+    assert count(browser, "path.hubnet-site") > 100
+    assert under == []
+
+
 # --------------------------------------------------------------------------
 # A freight run: vehicle classes on the legs
 # --------------------------------------------------------------------------

@@ -285,8 +285,24 @@ def _fit_class() -> type:
                     if ({{ this.reserve_left|tojson }} && box.clientWidth > 900 && side) {
                         left = side.getBoundingClientRect().right + 10;
                     }
-                    map.fitBounds(bounds, {"paddingTopLeft": [left, 40],
-                                           "paddingBottomRight": [90, 30]});
+                    // keep the sites clear of the layer switch (top right): beside
+                    // it or below it, whichever shows the sites larger
+                    var top = 40, right = 90, bottom = 30;
+                    var layers = box.querySelector(".leaflet-control-layers");
+                    if (layers) {
+                        var lr = layers.getBoundingClientRect();
+                        var mr = box.getBoundingClientRect();
+                        var beside = Math.max(right, mr.right - lr.left + 10);
+                        var below = Math.max(top, lr.bottom - mr.top + 10);
+                        var area = L.latLngBounds(bounds);
+                        var zBeside = map.getBoundsZoom(
+                            area, false, L.point(left + beside, top + bottom));
+                        var zBelow = map.getBoundsZoom(
+                            area, false, L.point(left + right, below + bottom));
+                        if (zBeside >= zBelow) { right = beside; } else { top = below; }
+                    }
+                    map.fitBounds(bounds, {"paddingTopLeft": [left, top],
+                                           "paddingBottomRight": [right, bottom]});
                 }
                 fit();
                 if (!fitted) {
