@@ -1892,6 +1892,11 @@ POLISH_MIN_S = 2.0
 POLISH_HEURISTIC_EFFORT = 0.3
 
 
+#: Said after a re-planning progress line that shows a bound: it is not one
+#: on the whole problem, whose bound the run reports.
+_FIXED_BOUND = " (a bound for these hubs only)"
+
+
 def polish_plan(
     data: NetworkData,
     st: _Setup,
@@ -1942,7 +1947,7 @@ def polish_plan(
         stats = run_solver(
             model,
             opts,
-            lambda line: say(f"hubs fixed: {line}"),
+            lambda line: say(f"hubs fixed: {line}{_FIXED_BOUND if 'bound' in line else ''}"),
             cbc_options=("preprocess on",),
             highs_options={"mip_heuristic_effort": POLISH_HEURISTIC_EFFORT},
         )
@@ -2029,8 +2034,11 @@ def _solve_model(
         if opts.time_limit_s is not None:
             raise NoSolutionError(f"no plan found within the time limit of {opts.time_limit_s:g} s")
         raise SolverError(f"{opts.name} returned no plan")
+    status: str = stats.status
+    if status == "optimal" and (stats.gap or 0.0) > 1e-6:
+        status = f"proven within the {100 * opts.gap:g} % gap asked for"
     say(
-        f"{stats.status}: {goal} {stats.objective:,.2f}, {stats.bound_text()} "
+        f"{status}: {goal} {stats.objective:,.2f}, {stats.bound_text()} "
         f"in {stats.solve_seconds:.1f} s"
     )
     return model, stats
