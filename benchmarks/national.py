@@ -39,7 +39,8 @@ PROGRESS = re.compile(
     r"^\s*([\d.]+) s\s+still solving, \d+ s, solver's best plan ([\d,.]+), bound ([\d,.]+), gap"
 )
 FINAL = re.compile(
-    r"(optimal|time_limit): least cost ([\d,.]+), bound ([\d,.]+), gap ([\d.]+) % in ([\d.]+) s"
+    r"(optimal|time_limit|proven within the [\d.]+ % gap asked for): least cost ([\d,.]+), "
+    r"bound ([\d,.]+), gap ([\d.]+) % in ([\d.]+) s"
 )
 #: Plans found outside the whole model: the local search's, and the best
 #: plan re-planned with its hubs fixed (``hubnet.freight.polish_plan``).
