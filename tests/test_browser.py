@@ -504,9 +504,18 @@ def test_demo_map_boxes_do_not_cover_each_other_on_a_small_screen(browser: Any, 
     assert_apart(folded)
 
 
+#: The map's boxes: headline, legend and Leaflet's controls.
+BOX_SELECTORS = json.dumps(
+    [
+        "#hn-headline",
+        "#hn-legend",
+        ".leaflet-control-scale",
+        ".leaflet-control-layers",
+        ".leaflet-control-zoom",
+    ]
+)
 BOXES = (
-    "return ['#hn-headline', '#hn-legend', '.leaflet-control-scale',"
-    " '.leaflet-control-layers', '.leaflet-control-zoom'].map(q => {"
+    f"return {BOX_SELECTORS}.map(q => {{"
     "  const r = document.querySelector(q).getBoundingClientRect();"
     "  return [q, r.left, r.top, r.right, r.bottom]; });"
 )
@@ -616,9 +625,9 @@ def test_no_terminal_is_hidden_under_a_hub(browser: Any, many: Path) -> None:
 
 
 #: Sites (hubs and terminals) whose centre lies under one of the map's boxes.
-SITES_UNDER_BOXES = """
-const boxes = ['#hn-headline', '#hn-legend', '.leaflet-control-layers',
-  '.leaflet-control-zoom', '.leaflet-control-scale']
+SITES_UNDER_BOXES = (
+    f"const boxes = {BOX_SELECTORS}"
+    + """
   .map(q => document.querySelector(q).getBoundingClientRect());
 return [...document.querySelectorAll('path.hubnet-site')].filter(s => {
   const r = s.getBoundingClientRect();
@@ -626,6 +635,7 @@ return [...document.querySelectorAll('path.hubnet-site')].filter(s => {
   return boxes.some(b => x >= b.left && x <= b.right && y >= b.top && y <= b.bottom);
 }).map(s => s.getAttribute('class'));
 """
+)
 
 
 @pytest.mark.parametrize("size", [(1024, 640), (1400, 900)])

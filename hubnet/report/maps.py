@@ -173,9 +173,8 @@ body, .leaflet-container { font: 13px/1.35 system-ui, -apple-system, "Segoe UI",
 .hn-title { font-weight: 650; font-size: 15px; overflow-wrap: anywhere; }
 .hn-desc { color: #4a4f57; font-size: 12px; margin: 2px 0 5px 0; overflow-wrap: anywhere; }
 .hn-label { background: rgba(255,255,255,0.8); border: none; box-shadow: none;
-  padding: 0 3px; font-size: 12px; font-weight: 600; color: #1a1a1a; }
+  padding: 0 3px; font-size: 12px; font-weight: 600; color: #1a1a1a; z-index: 2; }
 .hn-label::before { display: none; }
-.hn-label { z-index: 2; }
 /* terminal names below the hubs' (a new user found hub names hidden under them) */
 .hn-tlabel { font-weight: 400; font-size: 11px; background: rgba(255,255,255,0.7); z-index: 1; }
 .hn-box table, .hn-pop table { border-collapse: collapse; }
