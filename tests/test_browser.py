@@ -653,6 +653,31 @@ def test_no_site_starts_under_a_box(browser: Any, many: Path, size: tuple[int, i
     assert under == []
 
 
+@pytest.mark.parametrize("size", [(1024, 640), (1400, 900)])
+def test_no_site_starts_under_a_folded_box_in_the_report(
+    browser: Any, demo: Path, many: Path, tmp_path: Path, size: tuple[int, int]
+) -> None:
+    # In the report the maps' headline box and legend start folded, and the
+    # view used the whole frame: a new user found A Coruna (the demo's site
+    # nearest the top left) under the folded headline box.
+    report = write_report([demo, many], tmp_path / "report.html")
+    browser.set_window_size(*size)
+    under: list[list[str]] = []
+    try:
+        open_page(browser, report)
+        for frame in browser.find_elements("css selector", "iframe.map"):
+            browser.execute_script("arguments[0].scrollIntoView();", frame)
+            browser.switch_to.frame(frame)
+            wait_for(lambda: count(browser, "path.hubnet-site") > 20)
+            assert not browser.execute_script("return document.getElementById('hn-headline').open")
+            under.append(browser.execute_script(SITES_UNDER_BOXES))
+            browser.switch_to.default_content()
+    finally:
+        browser.switch_to.default_content()
+        browser.set_window_size(1400, 900)
+    assert under == [[], []]
+
+
 # --------------------------------------------------------------------------
 # A freight run: vehicle classes on the legs
 # --------------------------------------------------------------------------

@@ -89,7 +89,11 @@ def test_width_key_runs_from_the_smallest_leg_to_the_largest(run_dir: Path) -> N
     assert 0 < low < high
     page = html.unescape((run_dir / "map.html").read_text())
     legend = page[page.index("id='hn-legend'") :]
-    assert f"{low:,.0f} to" in legend and f"{high:,.0f} pallets per day" in legend
+    assert f"{low:,.0f} (thin) to {high:,.0f} (thick) pallets per day" in legend
+    # one tapering wedge, not two line samples: a thick sample in its small box
+    # read as a word blacked out (a new user's trial)
+    row = legend[legend.index("Line width by volume") - 400 : legend.index("Line width by volume")]
+    assert row.count("<polygon") == 1 and "<line" not in row.split("hn-row")[-1]
 
 
 def test_map_loads_no_script_or_stylesheet_from_anywhere(run_dir: Path) -> None:

@@ -280,20 +280,42 @@ def _fit_class() -> type:
                     // leave the left column to the headline box and legend when the
                     // map is wide enough and they are open
                     var side = document.getElementById("hn-side");
-                    var left = 30;
+                    var mr = box.getBoundingClientRect();
+                    var area = L.latLngBounds(bounds);
+                    var left = 30, top = 40, right = 90, bottom = 30;
                     if ({{ this.reserve_left|tojson }} && box.clientWidth > 900 && side) {
                         left = side.getBoundingClientRect().right + 10;
+                    } else if (side) {
+                        // folded boxes at the top left and bottom left (the report's
+                        // maps): keep the sites beside them or between them,
+                        // whichever shows the sites larger
+                        var beyond = left, above = top, under = bottom;
+                        side.querySelectorAll("details.hn-box:not([open])").forEach(
+                            function (b) {
+                                var r = b.getBoundingClientRect();
+                                if (r.width === 0) { return; }
+                                beyond = Math.max(beyond, r.right - mr.left + 10);
+                                if (r.top - mr.top < mr.height / 2) {
+                                    above = Math.max(above, r.bottom - mr.top + 10);
+                                } else {
+                                    under = Math.max(under, mr.bottom - r.top + 10);
+                                }
+                            });
+                        var zAside = map.getBoundsZoom(
+                            area, false, L.point(beyond + right, top + bottom));
+                        var zBetween = map.getBoundsZoom(
+                            area, false, L.point(left + right, above + under));
+                        if (zAside >= zBetween) { left = beyond; } else {
+                            top = above; bottom = under;
+                        }
                     }
                     // keep the sites clear of the layer switch (top right): beside
                     // it or below it, whichever shows the sites larger
-                    var top = 40, right = 90, bottom = 30;
                     var layers = box.querySelector(".leaflet-control-layers");
                     if (layers) {
                         var lr = layers.getBoundingClientRect();
-                        var mr = box.getBoundingClientRect();
                         var beside = Math.max(right, mr.right - lr.left + 10);
                         var below = Math.max(top, lr.bottom - mr.top + 10);
-                        var area = L.latLngBounds(bounds);
                         var zBeside = map.getBoundsZoom(
                             area, false, L.point(left + beside, top + bottom));
                         var zBelow = map.getBoundsZoom(
@@ -652,6 +674,24 @@ def _line_key(colour: str, width: float, dash: str | None = None, cased: bool = 
     )
 
 
+def _width_key(thin: float, thick: float) -> str:
+    """A wedge from ``thin`` to ``thick`` pixels wide: the legend's line-width scale.
+
+    Two separate line samples read as a word blacked out when the thick one
+    fills its box; one tapering shape reads as a scale.
+    """
+    height = thick + 4
+    mid = height / 2
+    points = (
+        f"2,{mid - thin / 2:.2f} 34,{mid - thick / 2:.2f} "
+        f"34,{mid + thick / 2:.2f} 2,{mid + thin / 2:.2f}"
+    )
+    return (
+        f"<span class='hn-k'><svg width='36' height='{height:g}' aria-hidden='true'>"
+        f"<polygon points='{points}' fill='#555'/></svg></span>"
+    )
+
+
 def _circle_key(radius: float, fill: str) -> str:
     size = int(2 * radius + 4)
     return (
@@ -718,9 +758,9 @@ def _legend(
     if largest_volume > 0:
         small = smallest_volume if 0 < smallest_volume < largest_volume else largest_volume / 10
         parts.append(
-            f"<div class='hn-row'>{_line_key('#555', _width(small, largest_volume))}"
-            f"<span>{esc(fmt_num(small, 0))} to</span>{_line_key('#555', MAX_WIDTH_PX)}"
-            f"<span>{esc(fmt_num(largest_volume, 0))} {esc(unit)} per day</span></div>"
+            f"<div class='hn-row'>{_width_key(_width(small, largest_volume), MAX_WIDTH_PX)}"
+            f"Line width by volume: {esc(fmt_num(small, 0))} (thin) to "
+            f"{esc(fmt_num(largest_volume, 0))} (thick) {esc(unit)} per day</div>"
         )
     parts.append(
         f"<div class='hn-row'>{_circle_key(9, HUB_COLOUR)}Hub, area by throughput (largest "
