@@ -27,6 +27,7 @@ Units: km, hours, km/h, currency per day, volume units per day.
 from __future__ import annotations
 
 import dataclasses
+import json
 import math
 import re
 from collections.abc import Mapping, Sequence
@@ -50,7 +51,7 @@ from typer.testing import CliRunner
 from hubnet.cli import app
 from hubnet.config import HubModelParams, SolverName, SolverParams
 from hubnet.data import Demand, DistanceMatrix, NetworkData, Site
-from hubnet.errors import EXIT_INFEASIBLE, InfeasibleError
+from hubnet.errors import EXIT_INFEASIBLE, EXIT_OK, InfeasibleError
 from hubnet.fleet import FreightParams, HoursParams, ServiceParams, Tier, VehicleClass
 from hubnet.freight import (
     _priced_start,
@@ -1177,3 +1178,23 @@ def test_cli_exits_3_naming_the_late_pair(tmp_path: Path) -> None:
     assert result.exit_code == EXIT_INFEASIBLE, result.output
     assert "A -> B" in result.stderr and "via H" in result.stderr
     assert not out.exists()
+
+
+def test_cli_freight_run_writes_the_solver_log(tmp_path: Path) -> None:
+    # The freight model's solver log goes to the run folder (solver.log): the
+    # same three sites with the deadline met (6 h allowed for the 5 h path).
+    for name, text in (
+        ("sites.csv", CLI_SITES),
+        ("demand.csv", CLI_DEMAND.replace("A,B,10,3", "A,B,10,6")),
+        ("vehicles.csv", CLI_VEHICLES),
+        ("scenario.toml", CLI_CONFIG),
+    ):
+        (tmp_path / name).write_text(text, encoding="utf-8")
+    out = tmp_path / "run"
+    result = CliRunner().invoke(app, ["solve", str(tmp_path / "scenario.toml"), "--out", str(out)])
+    assert result.exit_code == EXIT_OK, result.output
+    log = (out / "solver.log").read_text(encoding="utf-8")
+    # HiGHS's own report of the solve, not a line of hubnet's
+    assert "MIP has" in log and "Primal bound" in log and "LP iterations" in log, log[:2000]
+    summary = json.loads((out / "summary.json").read_text(encoding="utf-8"))
+    assert summary["solver"] == "highs" and summary["status"] == "optimal"
