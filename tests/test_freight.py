@@ -46,7 +46,7 @@ from benchdata import (
 )
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
-from typer.testing import CliRunner
+from typer.testing import CliRunner, Result
 
 from hubnet.cli import app
 from hubnet.config import HubModelParams, SolverName, SolverParams
@@ -1163,18 +1163,23 @@ name = "highs"
 """
 
 
-def test_cli_exits_3_naming_the_late_pair(tmp_path: Path) -> None:
-    # Planar km: A-H = H-B = 100, so A -> B via H takes 2 + 1 + 2 = 5 h at
-    # 50 km/h, against 3 h allowed by its demand row.
+def _cli_solve(folder: Path, demand: str, out: Path) -> Result:
+    """Write the three-site CLI case with ``demand`` to ``folder`` and solve it into ``out``."""
     for name, text in (
         ("sites.csv", CLI_SITES),
-        ("demand.csv", CLI_DEMAND),
+        ("demand.csv", demand),
         ("vehicles.csv", CLI_VEHICLES),
         ("scenario.toml", CLI_CONFIG),
     ):
-        (tmp_path / name).write_text(text, encoding="utf-8")
+        (folder / name).write_text(text, encoding="utf-8")
+    return CliRunner().invoke(app, ["solve", str(folder / "scenario.toml"), "--out", str(out)])
+
+
+def test_cli_exits_3_naming_the_late_pair(tmp_path: Path) -> None:
+    # Planar km: A-H = H-B = 100, so A -> B via H takes 2 + 1 + 2 = 5 h at
+    # 50 km/h, against 3 h allowed by its demand row.
     out = tmp_path / "run"
-    result = CliRunner().invoke(app, ["solve", str(tmp_path / "scenario.toml"), "--out", str(out)])
+    result = _cli_solve(tmp_path, CLI_DEMAND, out)
     assert result.exit_code == EXIT_INFEASIBLE, result.output
     assert "A -> B" in result.stderr and "via H" in result.stderr
     assert not out.exists()
@@ -1183,15 +1188,8 @@ def test_cli_exits_3_naming_the_late_pair(tmp_path: Path) -> None:
 def test_cli_freight_run_writes_the_solver_log(tmp_path: Path) -> None:
     # The freight model's solver log goes to the run folder (solver.log): the
     # same three sites with the deadline met (6 h allowed for the 5 h path).
-    for name, text in (
-        ("sites.csv", CLI_SITES),
-        ("demand.csv", CLI_DEMAND.replace("A,B,10,3", "A,B,10,6")),
-        ("vehicles.csv", CLI_VEHICLES),
-        ("scenario.toml", CLI_CONFIG),
-    ):
-        (tmp_path / name).write_text(text, encoding="utf-8")
     out = tmp_path / "run"
-    result = CliRunner().invoke(app, ["solve", str(tmp_path / "scenario.toml"), "--out", str(out)])
+    result = _cli_solve(tmp_path, CLI_DEMAND.replace("A,B,10,3", "A,B,10,6"), out)
     assert result.exit_code == EXIT_OK, result.output
     log = (out / "solver.log").read_text(encoding="utf-8")
     # HiGHS's own report of the solve, not a line of hubnet's
