@@ -19,9 +19,9 @@ _err = err_console
 _fail = fail
 
 _TILES_HELP = (
-    "Base map under the network: light (a plain grey map), osm (OpenStreetMap's own "
-    "servers, which refuse pages opened from a file) or none. The page needs a network "
-    "only for the base map."
+    "Base map under the network: outline (country outlines inside the page: works "
+    "offline, asks no server), light (a plain grey tile map from a tile server), osm "
+    "(OpenStreetMap's own servers, which refuse pages opened from a file) or none."
 )
 
 
@@ -45,7 +45,7 @@ def map_command(
             help="HTML file to write; by default map.html in the run folder (replaced).",
         ),
     ] = None,
-    tiles: Annotated[str, typer.Option("--tiles", help=_TILES_HELP)] = "light",
+    tiles: Annotated[str, typer.Option("--tiles", help=_TILES_HELP)] = "outline",
     sites: Annotated[
         Path | None,
         typer.Option(
@@ -79,7 +79,7 @@ def report_command(
     out: Annotated[Path, typer.Option("--out", "-o", help="HTML file to write.")] = Path(
         "report.html"
     ),
-    tiles: Annotated[str, typer.Option("--tiles", help=_TILES_HELP)] = "light",
+    tiles: Annotated[str, typer.Option("--tiles", help=_TILES_HELP)] = "outline",
     force: Annotated[bool, switch("--force", help="Replace the --out file if it exists.")] = False,
     verbose: Annotated[bool, switch("--verbose", "-v", help="Show tracebacks.")] = False,
 ) -> None:

@@ -465,6 +465,17 @@ def test_demo_map_and_report(browser: Any, demo: Path, tmp_path: Path) -> None:
     legs = pd.read_csv(demo / "legs.csv")
     assert count(browser, "path.hubnet-leg") == len(legs)
     assert count(browser, "path.hubnet-hub") == len(pd.read_csv(demo / "hubs.csv"))
+    # the default base map: country outlines drawn in the page (Spain and
+    # Portugal among them), under the legs, taking no clicks, and no tile asked
+    outlines = browser.execute_script(
+        "const p = [...document.querySelectorAll('.leaflet-overlay-pane path')];"
+        "return [p.length, p.filter(e => e.classList.contains('leaflet-interactive')).length];"
+    )
+    assert outlines[0] >= 2 and outlines[1] == 0
+    assert count(browser, ".leaflet-tile") == 0
+    assert (
+        "Natural Earth" in browser.find_element("css selector", ".leaflet-control-attribution").text
+    )
     # on a real network most lines can be clicked somewhere: the two directions
     # of a lane are drawn apart; the largest leg's popup shows its volume
     row = int(legs["volume_per_day"].idxmax())

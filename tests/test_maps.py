@@ -21,6 +21,7 @@ from hubnet.cli import app
 from hubnet.errors import HubnetError, InputError, OutputExistsError
 from hubnet.report.assets import leaflet_css, leaflet_js, leaflet_version
 from hubnet.report.maps import (
+    DEFAULT_TILES,
     LEG_FIELDS,
     MAP_CAUTION,
     TILES,
@@ -30,6 +31,7 @@ from hubnet.report.maps import (
     site_popup,
     write_map,
 )
+from hubnet.report.outlines import outlines_near
 from hubnet.report.rundata import RunData, read_run, read_table
 
 
@@ -111,7 +113,7 @@ def test_map_loads_no_script_or_stylesheet_from_anywhere(run_dir: Path) -> None:
 
 def test_tiles_none_requests_nothing(run_dir: Path) -> None:
     page = map_from_run(run_dir, tiles="none")
-    assert "L.tileLayer(" not in page
+    assert "L.tileLayer(" not in page and "L.geoJson(" not in page
     assert "arcgisonline" not in page and "openstreetmap.org/{z}" not in page
     light = map_from_run(run_dir, tiles="light")
     assert "server.arcgisonline.com" in light
@@ -236,6 +238,8 @@ def test_planar_sites_draw_without_tiles(run_dir: Path, tmp_path: Path) -> None:
     page = map_from_run(copy, tiles="light")
     assert "L.CRS.Simple" in page
     assert "arcgisonline" not in page
+    # no country outlines under planar x/y either: they are in degrees
+    assert "L.geoJson(" not in map_from_run(copy, tiles="outline")
     assert page.count('"className": "hubnet-leg ') == len(pd.read_csv(copy / "legs.csv"))
 
 
@@ -274,9 +278,50 @@ def test_ids_stay_text(tmp_path: Path) -> None:
 
 
 def test_unknown_tiles_are_refused(run_dir: Path) -> None:
-    with pytest.raises(HubnetError, match="tiles: expected one of light, osm, none"):
+    with pytest.raises(HubnetError, match="tiles: expected one of outline, light, osm, none"):
         map_html(read_run(run_dir), tiles="satellite")
-    assert TILES == ("light", "osm", "none")
+    assert TILES == ("outline", "light", "osm", "none")
+
+
+def test_default_base_map_is_outlines_inside_the_page(run_dir: Path) -> None:
+    # The default base map asks no server (a page opened offline still shows
+    # coasts and borders, and no tile provider learns the area planned): the
+    # countries near the sites, from Natural Earth's public-domain 1:110m data.
+    assert DEFAULT_TILES == "outline"
+    page = map_from_run(run_dir)
+    assert "L.tileLayer(" not in page
+    assert "arcgisonline" not in page and "openstreetmap" not in page.replace(
+        "openstreetmap.org/copyright", ""
+    )
+    assert page.count("L.geoJson(") == 1
+    assert "Natural Earth" in page
+    # The demo's sites lie in Spain and Portugal: both outlines are drawn, and
+    # no country far from them (Australia's data is in the file too).
+    assert '"name": "Spain"' in page and '"name": "Portugal"' in page
+    assert '"name": "Australia"' not in page
+
+
+def test_outlines_near_keeps_only_nearby_polygons() -> None:
+    # Bounds of the national demo (France): metropolitan France is drawn, but
+    # not French Guiana, another polygon of the same country in the data.
+    shapes = outlines_near(42.3, -4.5, 51.1, 8.2)
+    names = [f["properties"]["name"] for f in shapes["features"]]
+    assert "France" in names and "Belgium" in names and "Brazil" not in names
+    france = next(f for f in shapes["features"] if f["properties"]["name"] == "France")
+    lons = [p[0] for part in france["geometry"]["coordinates"] for p in part[0]]
+    assert min(lons) > -10.0  # French Guiana lies at about -52 degrees
+    assert outlines_near(-50.0, -140.0, -45.0, -135.0)["features"] == []  # open Pacific
+
+
+def test_cli_tiles_default_is_the_maps_default() -> None:
+    # The CLI spells its default out (importing the map module at start-up is slow).
+    import inspect
+
+    from hubnet.cli_report import map_command, report_command
+
+    for command in (map_command, report_command):
+        default = inspect.signature(command).parameters["tiles"].default
+        assert default == DEFAULT_TILES, command
 
 
 def test_write_map_replaces_own_map_but_not_other_files(run_dir: Path, tmp_path: Path) -> None:
@@ -304,7 +349,7 @@ def test_cli_map(run_dir: Path, tmp_path: Path) -> None:
     again = runner.invoke(app, ["map", str(run_dir), "--out", str(out)])
     assert again.exit_code == 5 and "already exists" in again.output
     bad = runner.invoke(app, ["map", str(run_dir), "--tiles", "satellite"])
-    assert bad.exit_code == 2 and "expected one of light, osm, none" in bad.output
+    assert bad.exit_code == 2 and "expected one of outline, light, osm, none" in bad.output
     missing = runner.invoke(app, ["map", str(tmp_path / "nothing")])
     assert missing.exit_code == 2 and "no such run folder" in missing.output
 

@@ -1,7 +1,8 @@
 r"""Leaflet's JavaScript and stylesheet, inlined so pages open without a network.
 
-A map page must render from a file on a laptop with no network (map tiles
-aside), so it cannot link Leaflet from a CDN as folium does by default.
+A map page must render from a file on a laptop with no network (tile base
+maps aside, which are asked for by name), so it cannot link Leaflet from a
+CDN as folium does by default.
 hubnet takes Leaflet's own release files from the PyPI package
 ``xstatic-leaflet`` (XStatic packaging: the upstream ``leaflet.js``,
 ``leaflet.css`` and ``images/`` of one Leaflet release as package data, no

@@ -21,7 +21,8 @@
    package ``xstatic-leaflet``), so the page needs no other file.
 
 The page links no script, stylesheet, font or image: it renders from a
-file with no network (map tiles aside; ``tiles="none"`` draws none). Every
+file with no network (the default base map, country outlines, is inside the
+page; only ``tiles="light"`` or ``"osm"`` fetch tiles from the web). Every
 text from the user's files, scenario names and site names included, is
 HTML-escaped.
 """
@@ -483,7 +484,7 @@ def report_from_runs(
     runs
         The runs, the first being the one the others are compared with.
     tiles
-        Base map of the embedded maps: ``light``, ``osm`` or ``none``.
+        Base map of the embedded maps: ``outline``, ``light``, ``osm`` or ``none``.
     made
         When the page was made (shown in its heading); now by default.
 
@@ -526,8 +527,9 @@ def report_from_runs(
         f"{_maps(runs, labels, tiles)}"
         "<footer>Made by hubnet from the run folders listed above; every figure is in their "
         "summary.json and CSV tables. Maps drawn with Leaflet (BSD-2-Clause licence), inlined "
-        "from the PyPI package xstatic-leaflet; base map tiles, when shown, come from their "
-        "provider (credited on each map).</footer>"
+        "from the PyPI package xstatic-leaflet; the base map (Natural Earth's public-domain "
+        "country outlines, or a tile provider's map when asked for) is credited on each "
+        "map.</footer>"
     )
     return (
         "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>"
@@ -545,7 +547,7 @@ def report_html(run_dirs: Sequence[str | Path], *, tiles: str = DEFAULT_TILES) -
     run_dirs
         Run folders; the first is the one the others are compared with.
     tiles
-        Base map of the embedded maps: ``light``, ``osm`` or ``none``.
+        Base map of the embedded maps: ``outline``, ``light``, ``osm`` or ``none``.
 
     Returns
     -------

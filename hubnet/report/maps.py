@@ -27,9 +27,11 @@ Self-contained
     stylesheet are inlined from the PyPI package ``xstatic-leaflet`` (see
     :mod:`hubnet.report.assets`) instead of folium's CDN links, and no other
     script or stylesheet is used (folium's jQuery, Bootstrap and icon fonts
-    are left out). Only the base map tiles need a network; without one the
-    network is drawn on a plain background. ``tiles="none"`` draws no base
-    map at all.
+    are left out). The default base map, country outlines
+    (:mod:`hubnet.report.outlines`), is drawn from data inside the page;
+    only the tile base maps (``tiles="light"`` or ``"osm"``) need a
+    network, and without one the network is drawn on a plain background.
+    ``tiles="none"`` draws no base map at all.
 
 Safe
     Every text from the user's files (site ids and names, the scenario's
@@ -73,19 +75,27 @@ from hubnet.report.fmt import (
     status_text,
     tier_colour,
 )
+from hubnet.report.outlines import OUTLINES_CREDIT, outlines_near
 from hubnet.report.rundata import RunData, coordinates, is_planar, read_run
 
 if TYPE_CHECKING:
     import folium
 
-#: Base map choices: a plain light-grey map, OpenStreetMap's standard map, or none.
-TILES: tuple[str, ...] = ("light", "osm", "none")
+#: Base map choices: country outlines drawn from hubnet's own data (no
+#: server asked, works offline: the default), a plain light-grey tile map,
+#: OpenStreetMap's standard tile map, or none.
+TILES: tuple[str, ...] = ("outline", "light", "osm", "none")
 #: The xyzservices tile provider of each choice with tiles. ``light`` needs no
-#: access key and is served to pages opened from a file; OpenStreetMap's own
-#: servers ask browsers for a Referer, which a page opened from a file does not
-#: send, so ``osm`` suits pages served from a web server.
+#: access key and is served to pages opened from a file, under its provider's
+#: terms of use; OpenStreetMap's own servers ask browsers for a Referer, which
+#: a page opened from a file does not send, so ``osm`` suits pages served from
+#: a web server.
 TILE_PROVIDERS: dict[str, str] = {"light": "Esri.WorldGrayCanvas", "osm": "OpenStreetMap.Mapnik"}
-DEFAULT_TILES = "light"
+DEFAULT_TILES = "outline"
+#: Colours of the outline base map: sea, land and borders.
+SEA_COLOUR = "#dce6ee"
+LAND_COLOUR = "#f7f7f4"
+BORDER_COLOUR = "#aab3bd"
 
 #: Order in which tier layers are drawn and listed (first drawn lies lowest).
 TIER_LAYERS: tuple[str, ...] = ("trunk", "feeder", "direct")
@@ -674,6 +684,34 @@ def _line_key(colour: str, width: float, dash: str | None = None, cased: bool = 
     )
 
 
+def _add_outlines(m: folium.Map, points: list[tuple[float, float]]) -> None:
+    """Draw the countries near the sites (``(lat, lon)`` degrees) as the base map.
+
+    Land is filled (the page's background is the sea, see :func:`build_map`),
+    under every leg and site, and takes no clicks; the attribution line
+    credits the data.
+    """
+    import folium
+
+    lats = [p[0] for p in points]
+    lons = [p[1] for p in points]
+    shapes = outlines_near(min(lats), min(lons), max(lats), max(lons))
+    style = {
+        "fillColor": LAND_COLOUR,
+        "fillOpacity": 1.0,
+        "color": BORDER_COLOUR,
+        "weight": 0.8,
+    }
+    folium.GeoJson(
+        shapes,
+        name="Country outlines",
+        control=False,
+        style_function=lambda _feature: style,
+        interactive=False,
+        attribution=OUTLINES_CREDIT,
+    ).add_to(m)
+
+
 def _width_key(thin: float, thick: float) -> str:
     """A wedge from ``thin`` to ``thick`` pixels wide: the legend's line-width scale.
 
@@ -863,8 +901,9 @@ def build_map(run: RunData, *, tiles: str = DEFAULT_TILES, compact: bool = False
         The run folder's files (:func:`hubnet.report.rundata.read_run`);
         needs a ``sites`` table with coordinates.
     tiles
-        ``light`` (default), ``osm`` or ``none``. Planar data (x/y) is
-        always drawn without tiles.
+        ``outline`` (default: country outlines from hubnet's own data, no
+        server asked), ``light`` or ``osm`` (tiles from a tile server) or
+        ``none``. Planar data (x/y) is always drawn without a base map.
     compact
         Show the headline box and the legend folded (one line each, opened
         by a click), for a map embedded in a page that gives the figures.
@@ -913,8 +952,10 @@ def build_map(run: RunData, *, tiles: str = DEFAULT_TILES, compact: bool = False
     )
     if planar:
         m.options["min_zoom"] = -30
-    if tiles != "none" and not planar:
+    if tiles in TILE_PROVIDERS and not planar:
         folium.TileLayer(TILE_PROVIDERS[tiles], name="Base map", control=False).add_to(m)
+    if tiles == "outline" and not planar:
+        _add_outlines(m, list(where.values()))
     CustomPane("hubnetLegs", z_index=410, pointer_events=True).add_to(m)
     CustomPane("hubnetSites", z_index=420, pointer_events=True).add_to(m)
     bind = _bind_class()
@@ -1077,6 +1118,11 @@ def build_map(run: RunData, *, tiles: str = DEFAULT_TILES, compact: bool = False
     )
     root.header.add_child(Element(f"<script>{leaflet_js()}</script>"), "leaflet_js_inline")
     root.header.add_child(Element(f"<style>{_STYLE}</style>"), "hubnet_style")
+    if tiles == "outline" and not planar:
+        root.header.add_child(
+            Element(f"<style>html .leaflet-container {{ background: {SEA_COLOUR}; }}</style>"),
+            "hubnet_sea",
+        )
     note = ""
     if missing:
         note = (
@@ -1112,7 +1158,8 @@ def map_html(run: RunData, *, tiles: str = DEFAULT_TILES, compact: bool = False)
     run
         The run folder's files.
     tiles
-        ``light`` (default), ``osm`` or ``none``.
+        ``outline`` (default), ``light``, ``osm`` or ``none`` (see
+        :func:`build_map`).
     compact
         Fold the headline box and the legend (see :func:`build_map`).
 
@@ -1120,7 +1167,7 @@ def map_html(run: RunData, *, tiles: str = DEFAULT_TILES, compact: bool = False)
     -------
     str
         A complete HTML document with Leaflet inlined; it loads nothing
-        but the base map tiles (none with ``tiles="none"``).
+        but the base map tiles of ``tiles="light"`` or ``"osm"``.
     """
     return str(build_map(run, tiles=tiles, compact=compact).get_root().render())
 
@@ -1135,7 +1182,7 @@ def map_from_run(
     run_dir
         The run folder.
     tiles
-        ``light`` (default), ``osm`` or ``none``.
+        ``outline`` (default), ``light``, ``osm`` or ``none``.
     sites
         A sites file to use instead of the folder's ``sites.csv``.
     """

@@ -44,7 +44,7 @@ def extra_run_files(
         The run folder's path (named on the map only when the summary has
         no scenario name).
     tiles
-        Base map of ``map.html``: ``light``, ``osm`` or ``none``.
+        Base map of ``map.html``: ``outline``, ``light``, ``osm`` or ``none``.
 
     Returns
     -------
