@@ -56,7 +56,7 @@ def map_command(
     force: Annotated[bool, switch("--force", help="Replace the --out file if it exists.")] = False,
     verbose: Annotated[bool, switch("--verbose", "-v", help="Show tracebacks.")] = False,
 ) -> None:
-    """Draw a run folder's route map as one HTML file (offline, but for the base map)."""
+    """Draw a run folder's route map as one HTML file (works offline; tile base maps aside)."""
     from hubnet.report.maps import write_map
 
     _check_tiles(tiles)

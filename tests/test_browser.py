@@ -36,7 +36,7 @@ from reportdata import SCENARIO_NAME, SITES, XSS_NAME, tiny_run
 
 from hubnet.api import run_scenario
 from hubnet.report.html import write_report
-from hubnet.report.maps import TERMINAL_LABELS_IN_VIEW, write_map
+from hubnet.report.maps import MAX_ZOOM, TERMINAL_LABELS_IN_VIEW, write_map
 
 REPO_ROOT = Path(__file__).resolve().parent.parent
 ARTIFACTS = REPO_ROOT / "tests" / "artifacts"
@@ -447,6 +447,22 @@ def test_report_renders_with_no_console_errors(browser: Any, tiny: Path, tmp_pat
             assert all(any(h in u for h in TILE_HOSTS) for u in outside), outside
             assert console_errors(browser, allowed_hosts=TILE_HOSTS) == []
     screenshot(browser, "report-tiny.png", full_page=True)
+
+
+def test_a_lone_site_is_shown_at_street_level_not_beyond(
+    browser: Any, tiny: Path, tmp_path: Path
+) -> None:
+    # A review found that with no tile layer (the outline base map) nothing
+    # capped the zoom, so a map with one site located (here through --sites)
+    # was fitted at an endless zoom. The map now stops at MAX_ZOOM.
+    sites = pd.read_csv(tiny / "sites.csv")
+    one = tmp_path / "one_site.csv"
+    sites.iloc[:1].to_csv(one, index=False)
+    page = write_map(tiny, tmp_path / "one.html", sites=one)
+    open_page(browser, page)
+    zoom = browser.execute_script(f"return {THE_MAP}.getZoom();")
+    assert zoom == MAX_ZOOM
+    assert count(browser, "path.hubnet-site") == 1
 
 
 # --------------------------------------------------------------------------

@@ -92,6 +92,11 @@ TILES: tuple[str, ...] = ("outline", "light", "osm", "none")
 #: a web server.
 TILE_PROVIDERS: dict[str, str] = {"light": "Esri.WorldGrayCanvas", "osm": "OpenStreetMap.Mapnik"}
 DEFAULT_TILES = "outline"
+#: Deepest zoom of a map on geographic coordinates (street level; the tile
+#: layers' own limits are 16-19).
+MAX_ZOOM = 18
+#: Least margin (degrees) around the sites within which countries are drawn.
+OUTLINE_MARGIN_DEG = 6.0
 #: Colours of the outline base map: sea, land and borders.
 SEA_COLOUR = "#dce6ee"
 LAND_COLOUR = "#f7f7f4"
@@ -695,7 +700,12 @@ def _add_outlines(m: folium.Map, points: list[tuple[float, float]]) -> None:
 
     lats = [p[0] for p in points]
     lons = [p[1] for p in points]
-    shapes = outlines_near(min(lats), min(lons), max(lats), max(lons))
+    # The page's background is the sea: countries left out would show as sea
+    # once zoomed out, so the margin grows with the network's extent.
+    span = max(max(lats) - min(lats), max(lons) - min(lons))
+    shapes = outlines_near(
+        min(lats), min(lons), max(lats), max(lons), margin_deg=max(OUTLINE_MARGIN_DEG, span)
+    )
     style = {
         "fillColor": LAND_COLOUR,
         "fillOpacity": 1.0,
@@ -952,6 +962,11 @@ def build_map(run: RunData, *, tiles: str = DEFAULT_TILES, compact: bool = False
     )
     if planar:
         m.options["min_zoom"] = -30
+    else:
+        # A tile layer would set the deepest zoom; with outlines or no base map
+        # the map needs its own, or a lone site (or sites a few metres apart)
+        # is fitted at an endless zoom.
+        m.options["max_zoom"] = MAX_ZOOM
     if tiles in TILE_PROVIDERS and not planar:
         folium.TileLayer(TILE_PROVIDERS[tiles], name="Base map", control=False).add_to(m)
     if tiles == "outline" and not planar:
