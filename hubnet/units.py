@@ -16,8 +16,9 @@ WGS84_F = 1.0 / 298.257223563
 
 #: Road distance over great-circle distance. Ballou, Rahardja and Sakai
 #: (2002), "Selected country circuity factors for road travel distance
-#: estimation", Transportation Research Part A 36(9): about 1.2 for the US,
-#: 1.1 to 1.4 across countries (from memory).
+#: estimation", Transportation Research Part A 36(9), 843-848: about 1.2 for
+#: the US, 1.1 to 1.4 across countries (as the shared TRADE_FACTS.md gives
+#: it, itself marked from memory).
 DEFAULT_CIRCUITY = 1.2
 
 M_PER_KM = 1000.0
