@@ -1955,9 +1955,19 @@ def polish_plan(
         say(f"the re-planning failed ({err}); the best plan stands")
         return None, None
     if stats.objective is None:
-        say(f"no re-planned plan ({stats.status}); the best plan stands")
+        # HiGHS stopped by its time limit with no plan reports no status of
+        # its own here ("error"): say what happened (a new user read "error").
+        out_of_time = stats.status == "time_limit" or _stopped_on_time(stats.log)
+        why = "none found in its time" if out_of_time else stats.status
+        say(f"no re-planned plan ({why}); the best plan stands")
         return None, stats
     return read_plan(model, fp), stats
+
+
+def _stopped_on_time(log: str) -> bool:
+    """Whether a solver log says the run stopped at its time limit (HiGHS or CBC)."""
+    text = log.lower()
+    return "time limit reached" in text or "stopped on time" in text
 
 
 def _priced_start(

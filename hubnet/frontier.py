@@ -132,7 +132,9 @@ class FrontierPoint:
         On the frontier: a plan, not the same as an earlier point, and no
         other plan is no dearer and no slower while better in one.
     note
-        Why a point is not efficient, or why it has no plan.
+        Why a point is not efficient, or why it has no plan; on an efficient
+        plan, that it is not proven within :data:`UNPROVEN_GAP` of its least
+        cost (empty otherwise).
     """
 
     point: int
@@ -340,9 +342,16 @@ def trace_frontier(
         shutil.rmtree(tmp, ignore_errors=True)
         raise
     done = Frontier(out, tuple(marked), time.perf_counter() - t0)
+    unsure = [p for p in done.efficient if _unproven(p)]
     progress(
         f"frontier of {cfg.name}: {len(done.efficient)} efficient points of {points}"
         + (f", {len(done.failed)} without a plan" if done.failed else "")
+        + (
+            f"; {len(unsure)} of them not proven within {100 * UNPROVEN_GAP:.0f} % of their "
+            "least cost (a longer --time-limit may find cheaper plans)"
+            if unsure
+            else ""
+        )
     )
     return done
 
@@ -555,6 +564,31 @@ def _tolerance(x: float) -> float:
     return SAME_POINT_RTOL * max(1.0, abs(x))
 
 
+#: A plan whose proven gap is above this share is flagged as unproven in its
+#: note, in the chart and at the end of the run: at a short time limit a
+#: capped point can stop many times dearer than its least cost (a trial at
+#: 20 s a point: gaps of 92-93 %), and a frontier drawn through it misleads.
+UNPROVEN_GAP = 0.05
+
+
+def _unproven(p: FrontierPoint) -> bool:
+    """Whether a plan is far from proven: gap above :data:`UNPROVEN_GAP`, or none known."""
+    if not p.has_plan or p.status == "optimal":
+        return False
+    return p.gap is None or p.gap > UNPROVEN_GAP
+
+
+def _unproven_note(p: FrontierPoint) -> str:
+    """The note of an efficient plan: empty, or why its place on the frontier is unsure."""
+    if not _unproven(p):
+        return ""
+    gap = "unknown" if p.gap is None else f"{100 * p.gap:.3g} %"
+    return (
+        f"not proven: gap to the least cost for this point {gap}; a cheaper plan may "
+        "exist (give a longer --time-limit)"
+    )
+
+
 def mark_efficient(found: Sequence[FrontierPoint | _Failed]) -> list[FrontierPoint]:
     """Mark each point efficient or not, with a note saying why not.
 
@@ -597,13 +631,14 @@ def mark_efficient(found: Sequence[FrontierPoint | _Failed]) -> list[FrontierPoi
             if q.total_cost <= p.total_cost + tc and q.avg_transit_h <= p.avg_transit_h + tt:
                 note = f"dominated by {q.name}: no dearer and no slower"
                 if p.gap:  # a plan proven only within a gap may lose to a capped one
-                    note += f" (this plan is optimal within a gap of {100 * p.gap:.3g} %)"
+                    within = f"{100 * p.gap:.3g} %"
+                    note += f" (this plan is proven only within {within} of its least cost)"
                 break
         if note:
             out[p.point] = dataclasses.replace(p, efficient=False, note=note)
         else:
             kept.append(p)
-            out[p.point] = dataclasses.replace(p, efficient=True, note="")
+            out[p.point] = dataclasses.replace(p, efficient=True, note=_unproven_note(p))
     return [out[k] for k in sorted(out)]
 
 
@@ -665,6 +700,8 @@ def frontier_png(points: Sequence[FrontierPoint], *, title: str = "") -> bytes:
         text = str(p.point)
         if p.kind != "between":
             text += f" {p.kind}"
+        if p.efficient and _unproven(p):
+            text += " (not proven)"
         ax.annotate(
             text,
             (p.avg_transit_h or 0.0, p.total_cost or 0.0),

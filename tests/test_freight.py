@@ -1196,3 +1196,14 @@ def test_cli_freight_run_writes_the_solver_log(tmp_path: Path) -> None:
     assert "MIP has" in log and "Primal bound" in log and "LP iterations" in log, log[:2000]
     summary = json.loads((out / "summary.json").read_text(encoding="utf-8"))
     assert summary["solver"] == "highs" and summary["status"] == "optimal"
+
+
+def test_a_re_planning_stopped_by_its_time_limit_is_not_called_an_error() -> None:
+    # A trial's progress said "no re-planned plan (error)" where HiGHS had only
+    # run out of time: HiGHS's own summary line (as in that run's solver.log)
+    # and CBC's are read as a time-out.
+    from hubnet.freight import _stopped_on_time
+
+    assert _stopped_on_time("Solving report\n  Status            Time limit reached\n")
+    assert _stopped_on_time("Result - Stopped on time\n")
+    assert not _stopped_on_time("Solving report\n  Status            Optimal\n")

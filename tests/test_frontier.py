@@ -52,6 +52,7 @@ import csv
 import json
 import os
 from pathlib import Path
+from typing import Any
 
 import pytest
 from PIL import Image
@@ -67,7 +68,7 @@ from hubnet.errors import (
     InputError,
     NoSolutionError,
 )
-from hubnet.frontier import CSV_COLUMNS, Frontier, trace_frontier
+from hubnet.frontier import CSV_COLUMNS, Frontier, FrontierPoint, mark_efficient, trace_frontier
 from hubnet.report.fmt import RUN_COLOURS
 from hubnet.report.html import report_html
 from hubnet.runfolder import STANDARD_FILES
@@ -510,3 +511,40 @@ def test_cli_not_freight_and_no_plan(tmp_path: Path) -> None:
     assert code == EXIT_INFEASIBLE
     assert not (tmp_path / "f").exists()
     assert sorted(os.listdir(tmp_path)) == ["plain", "tight"]  # nothing half-written
+
+
+def test_unproven_plans_are_flagged_not_drawn_as_sure() -> None:
+    # A trial at 20 s a point on the national demo got capped points 15-30
+    # times dearer than the cheapest (gaps 92-93 %) marked efficient with an
+    # empty note, and a dominated one described as "optimal within a gap of
+    # 93.3 %". Figures here are made up; only the marking is checked.
+    def plan(
+        point: int, kind: Any, cost: float, hours: float, status: str, gap: float | None
+    ) -> FrontierPoint:
+        return FrontierPoint(
+            point,
+            kind,
+            None if kind != "between" else hours + 0.1,
+            status,
+            total_cost=cost,
+            avg_transit_h=hours,
+            gap=gap,
+            run_dir=f"point-0{point}",
+        )
+
+    marked = mark_efficient(
+        [
+            plan(1, "cheapest", 100.0, 10.0, "optimal", 0.0),
+            plan(2, "between", 150.0, 9.0, "time_limit", 0.01),  # within 5 %: no flag
+            plan(3, "between", 5000.0, 8.5, "time_limit", 0.933),  # dominated by 4
+            plan(4, "between", 4000.0, 8.0, "time_limit", 0.92),
+            plan(5, "fastest", 9000.0, 7.0, "time_limit", None),  # no bound known
+        ]
+    )
+    notes = {p.point: (p.efficient, p.note) for p in marked}
+    assert notes[1] == (True, "") and notes[2] == (True, "")
+    assert notes[3][0] is False
+    assert "dominated by point-04" in notes[3][1] and "proven only within 93.3 %" in notes[3][1]
+    assert notes[4][0] is True and notes[4][1].startswith("not proven: gap to the least cost")
+    assert "92 %" in notes[4][1] and "--time-limit" in notes[4][1]
+    assert notes[5][0] is True and "gap to the least cost for this point unknown" in notes[5][1]
