@@ -199,6 +199,11 @@ FIGURES: tuple[tuple[str, tuple[str, ...]], ...] = (
     ("  collection", ("costs", "collection")),
     ("  transfer", ("costs", "transfer")),
     ("  distribution", ("costs", "distribution")),
+    ("  feeder vehicles", ("costs", "feeder")),
+    ("  trunk vehicles", ("costs", "trunk")),
+    ("  direct vehicles", ("costs", "direct")),
+    ("  value of time", ("costs", "time")),
+    ("  carbon price", ("costs", "carbon_in_vehicles")),
     ("objective", ("objective",)),
     ("best bound", ("best_bound",)),
     ("gap", ("gap",)),
@@ -208,7 +213,31 @@ FIGURES: tuple[tuple[str, tuple[str, ...]], ...] = (
     ("trunk legs", ("legs_by_tier", "trunk")),
     ("feeder legs", ("legs_by_tier", "feeder")),
     ("direct legs", ("legs_by_tier", "direct")),
+    ("vehicles per day", ("vehicles",)),
+    ("vehicle-km per day", ("vehicle_km",)),
+    ("average transit h", ("avg_transit_h",)),
+    ("longest transit h", ("max_transit_h",)),
+    ("CO2e kg per day", ("co2e_kg",)),
     ("solve seconds", ("solve_seconds",)),
+)
+#: Figures shown only when a side has them: the classic model's cost parts
+#: and the freight model's figures (each model leaves the other's out).
+MODEL_FIGURES = frozenset(
+    {
+        "  collection",
+        "  transfer",
+        "  distribution",
+        "  feeder vehicles",
+        "  trunk vehicles",
+        "  direct vehicles",
+        "  value of time",
+        "  carbon price",
+        "vehicles per day",
+        "vehicle-km per day",
+        "average transit h",
+        "longest transit h",
+        "CO2e kg per day",
+    }
 )
 
 
@@ -317,7 +346,11 @@ def compare_runs(a: RunRef, b: RunRef) -> RunComparison:
     (('H2',), [('H2', ('H2',), ()), ('T2', ('H2',), ('H1',))])
     """
     sa, sb = _summary_of(a), _summary_of(b)
-    figures = tuple(_change(name, _get(sa, p), _get(sb, p)) for name, p in FIGURES)
+    figures = tuple(
+        _change(name, _get(sa, p), _get(sb, p))
+        for name, p in FIGURES
+        if name not in MODEL_FIGURES or _get(sa, p) is not None or _get(sb, p) is not None
+    )
     ha, hb = a.hubs, b.hubs
     opened = tuple(h for h in hb if h not in ha)
     closed = tuple(h for h in ha if h not in hb)

@@ -126,3 +126,33 @@ def test_unknown_runs(tmp_path: Path) -> None:
     result = runner.invoke(app, ["compare", "nowhere", "nothing", "--history", "off"])
     assert result.exit_code == EXIT_BAD_INPUT
     assert "no such run folder (and the run history is off)" in result.output
+
+
+def test_freight_runs_compare_vehicles_transit_and_co2e(
+    two_runs: tuple[JobResult, JobResult, str], tmp_path: Path
+) -> None:
+    # A trial compared two freight runs and got empty collection, transfer and
+    # distribution rows and no vehicle, transit or CO2e rows. Each model's
+    # figures now show for its own runs, read from each summary.json.
+    from freightdata import freight_run
+
+    first = freight_run(tmp_path / "one").folder
+    second = freight_run(tmp_path / "two").folder
+    c = compare_runs(find_run(first), find_run(second))
+    rows = {f.name: f for f in c.figures}
+    summary = json.loads((first / "summary.json").read_text(encoding="utf-8"))
+    for name, key in (
+        ("vehicles per day", "vehicles"),
+        ("vehicle-km per day", "vehicle_km"),
+        ("average transit h", "avg_transit_h"),
+        ("CO2e kg per day", "co2e_kg"),
+    ):
+        assert rows[name].a == summary[key] and rows[name].b == summary[key], name
+    assert rows["  trunk vehicles"].a == summary["costs"]["trunk"]
+    assert "  collection" not in rows and "  transfer" not in rows
+    # and a classic comparison keeps its own cost parts, without freight rows
+    a, b, _ = two_runs
+    assert a.run_folder is not None and b.run_folder is not None
+    classic = {f.name for f in compare_runs(find_run(a.run_folder), find_run(b.run_folder)).figures}
+    assert {"  collection", "  transfer", "  distribution"} <= classic
+    assert "vehicles per day" not in classic and "  trunk vehicles" not in classic
