@@ -1014,6 +1014,8 @@ def test_a_run_stopped_short_of_its_gap_re_plans_its_best_hubs() -> None:
     )
     said = "\n".join(lines)
     assert sol.stats.status == "time_limit"
+    # the limit the user set, not the whole model's share of it
+    assert sol.stats.options["time_limit_s"] == 20.0
     assert "re-planning routes and vehicles for the best plan's" in said
     assert "# the best plan's hubs fixed" in sol.stats.log
     outcomes = ("re-planned with its hubs fixed", "is not cheaper", "no re-planned plan")
@@ -1163,7 +1165,7 @@ name = "highs"
 """
 
 
-def _cli_solve(folder: Path, demand: str, out: Path) -> Result:
+def _cli_solve(folder: Path, demand: str, out: Path, *args: str) -> Result:
     """Write the three-site CLI case with ``demand`` to ``folder`` and solve it into ``out``."""
     for name, text in (
         ("sites.csv", CLI_SITES),
@@ -1172,7 +1174,9 @@ def _cli_solve(folder: Path, demand: str, out: Path) -> Result:
         ("scenario.toml", CLI_CONFIG),
     ):
         (folder / name).write_text(text, encoding="utf-8")
-    return CliRunner().invoke(app, ["solve", str(folder / "scenario.toml"), "--out", str(out)])
+    return CliRunner().invoke(
+        app, ["solve", str(folder / "scenario.toml"), "--out", str(out), *args]
+    )
 
 
 def test_cli_exits_3_naming_the_late_pair(tmp_path: Path) -> None:
@@ -1189,13 +1193,17 @@ def test_cli_freight_run_writes_the_solver_log(tmp_path: Path) -> None:
     # The freight model's solver log goes to the run folder (solver.log): the
     # same three sites with the deadline met (6 h allowed for the 5 h path).
     out = tmp_path / "run"
-    result = _cli_solve(tmp_path, CLI_DEMAND.replace("A,B,10,3", "A,B,10,6"), out)
+    result = _cli_solve(
+        tmp_path, CLI_DEMAND.replace("A,B,10,3", "A,B,10,6"), out, "--time-limit", "30"
+    )
     assert result.exit_code == EXIT_OK, result.output
     log = (out / "solver.log").read_text(encoding="utf-8")
     # HiGHS's own report of the solve, not a line of hubnet's
     assert "MIP has" in log and "Primal bound" in log and "LP iterations" in log, log[:2000]
     summary = json.loads((out / "summary.json").read_text(encoding="utf-8"))
     assert summary["solver"] == "highs" and summary["status"] == "optimal"
+    # the limit the user set, not the whole model's share of it
+    assert summary["solver_options"]["time_limit_s"] == 30.0
 
 
 def test_a_re_planning_stopped_by_its_time_limit_is_not_called_an_error() -> None:
