@@ -16,7 +16,7 @@ from reportdata import SCENARIO_NAME, XSS_NAME, tiny_run
 from typer.testing import CliRunner
 
 from hubnet.cli import app
-from hubnet.report.charts import grouped_bars, nice_ticks, rank_size_plot
+from hubnet.report.charts import frontier_plot, grouped_bars, nice_ticks, rank_size_plot
 from hubnet.report.fmt import (
     CLASS_COLOURS,
     HUB_COLOUR,
@@ -197,3 +197,35 @@ def test_gap_in_fixed_point() -> None:
     assert fmt_gap(0.0) == "0 %"
     assert fmt_gap(None) == "unknown"
     assert all("e" not in fmt_gap(10.0**-k) for k in range(1, 12))
+
+
+def test_frontier_chart_cost_axis_does_not_go_below_zero() -> None:
+    # A trial's frontier (0.35, 5.3 and 10.7 million per day) had its cost
+    # axis padded down to -5,000,000: costs are never negative.
+    svg = frontier_plot(
+        [9.45, 7.70, 7.12],
+        [348_986.0, 5_324_499.0, 10_697_604.0],
+        ["1", "4", "5"],
+        [True, True, True],
+        title="frontier",
+    )
+    ticks = re.findall(r"text-anchor='end' fill='#4a4f57'>([^<]+)</text>", svg)
+    assert ticks and ticks[0] == "0"
+    assert not any(t.startswith(("-", "\u2212")) for t in ticks), ticks
+
+
+def test_a_caution_runs_share_is_listed_once(runs: tuple[Path, Path], tmp_path: Path) -> None:
+    # A trial's report of three frontier points listed each point's two
+    # cautions three times over: a caution every run gives is listed once.
+    folders = []
+    for name, extra in (("a", ["shared note", "only in a"]), ("b", ["shared note"])):
+        copy = tmp_path / name
+        shutil.copytree(runs[0], copy)
+        summary = json.loads((copy / "summary.json").read_text())
+        summary["cautions"] = [*summary.get("cautions", []), *extra]
+        (copy / "summary.json").write_text(json.dumps(summary))
+        folders.append(copy)
+    page = report_html(folders, tiles="none")
+    box = page[page.index("id='cautions'") : page.index("</section>", page.index("id='cautions'"))]
+    assert box.count("shared note") == 1 and "<b>Every run:</b> shared note" in box
+    assert box.count("only in a") == 1 and ":</b> only in a" in box

@@ -316,7 +316,12 @@ def frontier_plot(
     xs, ys = [p[1] for p in pts], [p[2] for p in pts]
     pad_x, pad_y = 0.06 * (max(xs) - min(xs)), 0.06 * (max(ys) - min(ys))
     xt = range_ticks(min(xs) - pad_x, max(xs) + pad_x)
-    yt = range_ticks(min(ys) - pad_y, max(ys) + pad_y)
+    # costs are not negative: the padding stops at 0 (a trial's axis, padded
+    # below a 0.35 million cheapest plan on a 10.7 million range, began at -5 million)
+    y_low = min(ys) - pad_y
+    if min(ys) >= 0:
+        y_low = max(y_low, 0.0)
+    yt = range_ticks(y_low, max(ys) + pad_y)
     x_dec = max(0, -math.floor(math.log10(xt[1] - xt[0]) + 1e-9))
     y_dec = max(0, -math.floor(math.log10(yt[1] - yt[0]) + 1e-9))
 

@@ -123,6 +123,7 @@ figure { margin: 8px 0 18px; }
 figure h3 { margin-top: 4px; }
 svg.chart { width: 100%; max-width: 760px; height: auto; display: block; }
 #headline thead th { white-space: normal; max-width: 240px; vertical-align: bottom; }
+#headline td.t { white-space: normal; max-width: 200px; }
 table.hierarchy thead th { min-width: 88px; }
 .legend span { margin-right: 16px; white-space: nowrap; }
 .legend svg { vertical-align: -1px; margin-right: 4px; }
@@ -282,7 +283,8 @@ def _headline_table(runs: Sequence[RunData], labels: Sequence[str]) -> str:
         for i, run in enumerate(runs):
             value = get(run)
             warn = kind == "text" and label == "Status" and run.summary.get("status") != "optimal"
-            cls = "n warn" if warn else "n"
+            # text cells (hub lists) may wrap: three runs side by side must fit
+            cls = "n warn t" if warn else "n t" if kind == "text" else "n"
             cells.append(f"<td class='{cls}'>{esc(_f(value, kind))}</td>")
             if i > 0:
                 diff = _diff(first, value) if kind in ("num",) else ""
@@ -297,7 +299,7 @@ def _headline_table(runs: Sequence[RunData], labels: Sequence[str]) -> str:
             cells = [f"<th>{esc(word)}</th>", "<td class='n'></td>"]
             for run in runs[1:]:
                 changed = pick(set(_hub_ids(run)))
-                cells.append(f"<td class='n'>{esc(', '.join(changed) or 'none')}</td><td></td>")
+                cells.append(f"<td class='n t'>{esc(', '.join(changed) or 'none')}</td><td></td>")
             body.append(f"<tr>{''.join(cells)}</tr>")
     return (
         "<div class='scroll'><table id='headline'><thead><tr>"
@@ -309,13 +311,26 @@ def _headline_table(runs: Sequence[RunData], labels: Sequence[str]) -> str:
 
 
 def _cautions(runs: Sequence[RunData], labels: Sequence[str]) -> str:
+    """The "Read this first" box: the standing cautions, then each run's own.
+
+    A caution several runs share is listed once, with the runs it applies to
+    (a trial's report of three frontier points listed the same two sentences
+    three times each).
+    """
     items = [f"<li>{esc(c)}</li>" for c in STANDING_CAUTIONS]
     standing = set(STANDING_CAUTIONS)
+    by_text: dict[str, list[str]] = {}
     for label, run in zip(labels, runs, strict=True):
         cautions = run.summary.get("cautions")
         for text in cautions if isinstance(cautions, list) else []:
-            if str(text) not in standing:
-                items.append(f"<li><b>{esc(label)}:</b> {esc(text)}</li>")
+            if str(text) not in standing and label not in by_text.get(str(text), []):
+                by_text.setdefault(str(text), []).append(label)
+    for text, who in by_text.items():
+        if len(who) == len(runs) > 1:
+            named = "Every run"
+        else:
+            named = ", ".join(who)
+        items.append(f"<li><b>{esc(named)}:</b> {esc(text)}</li>")
     return (
         "<section class='cautions' id='cautions'><h2>Read this first</h2><ul>"
         + "".join(items)
