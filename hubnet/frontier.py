@@ -169,6 +169,10 @@ class FrontierPoint:
         def num(x: float | None) -> str:
             return "" if x is None else repr(float(x))
 
+        def count(x: float | None) -> str:
+            """A count as a whole number when it is one (``272``, not ``272.0``)."""
+            return "" if x is None else str(int(x)) if float(x).is_integer() else repr(float(x))
+
         return {
             "point": str(self.point),
             "kind": self.kind,
@@ -176,7 +180,7 @@ class FrontierPoint:
             "total_cost": num(self.total_cost),
             "avg_transit_h": num(self.avg_transit_h),
             "max_transit_h": num(self.max_transit_h),
-            "vehicles": num(self.vehicles),
+            "vehicles": count(self.vehicles),
             "vehicle_km": num(self.vehicle_km),
             "co2e_kg": num(self.co2e_kg),
             "hubs": " ".join(self.hubs),
@@ -860,7 +864,8 @@ def frontier_section(run_folders: Sequence[Path]) -> str:
     ]
     for folder, runs in where.items():
         try:
-            rows = [r for r in read_frontier(folder) if _num(r.get("total_cost")) is not None]
+            every = read_frontier(folder)
+            rows = [r for r in every if _num(r.get("total_cost")) is not None]
         except InputError as err:
             parts.append(f"<p class='note'>No frontier chart for {esc(folder)}: {esc(err)}</p>")
             continue
@@ -874,14 +879,20 @@ def frontier_section(run_folders: Sequence[Path]) -> str:
             names=[r.get("kind", "") if r.get("kind") != "between" else "" for r in rows],
             series=[index.get(r.get("run_dir", "")) for r in rows],
         )
-        listed = "".join(
-            f"<li>point {esc(r.get('point'))} ({esc(r.get('kind'))}): cost "
-            f"{esc(fmt_num(_num(r.get('total_cost'))))} per day, average transit "
-            f"{esc(fmt_num(_num(r.get('avg_transit_h'))))} h"
-            + ("" if r.get("efficient") == "true" else f" — {esc(r.get('note') or 'not on it')}")
-            + "</li>"
-            for r in rows
-        )
+
+        def item(r: Mapping[str, str]) -> str:
+            head = f"point {esc(r.get('point'))} ({esc(r.get('kind'))})"
+            if _num(r.get("total_cost")) is None:  # no plan: say so, and why
+                return f"<li>{head}: no plan — {esc(r.get('note') or r.get('status'))}</li>"
+            note = r.get("note") or ("" if r.get("efficient") == "true" else "not on it")
+            return (
+                f"<li>{head}: cost {esc(fmt_num(_num(r.get('total_cost'))))} per day, average "
+                f"transit {esc(fmt_num(_num(r.get('avg_transit_h'))))} h"
+                + (f" — {esc(note)}" if note else "")
+                + "</li>"
+            )
+
+        listed = "".join(item(r) for r in every)
         parts.append(
             f"<figure><h3>{esc(folder.name)}</h3>{chart}<figcaption><ul>{listed}</ul>"
             f"<div class='folder'>{esc(folder)}</div></figcaption></figure>"

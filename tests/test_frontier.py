@@ -214,6 +214,8 @@ def test_csv_has_the_spec_columns_and_one_row_per_point(ring: tuple[Frontier, li
     assert [r["run_dir"] for r in rows] == [f"point-{k:02d}" for k in range(1, 7)]
     assert {r["efficient"] for r in rows} <= {"true", "false"}
     assert all(r["status"] == "optimal" for r in rows)
+    # vehicles are counted whole: 4, not 4.0 (a trial read 272.0 vehicles)
+    assert all(r["vehicles"].isdigit() for r in rows), [r["vehicles"] for r in rows]
 
 
 def test_caps_evenly_spaced_between_the_two_ends(ring: tuple[Frontier, list[str]]) -> None:
@@ -548,3 +550,29 @@ def test_unproven_plans_are_flagged_not_drawn_as_sure() -> None:
     assert notes[4][0] is True and notes[4][1].startswith("not proven: gap to the least cost")
     assert "92 %" in notes[4][1] and "--time-limit" in notes[4][1]
     assert notes[5][0] is True and "gap to the least cost for this point unknown" in notes[5][1]
+
+
+def test_report_names_a_point_without_a_plan(
+    ring: tuple[Frontier, list[str]], tmp_path: Path
+) -> None:
+    # A trial's report of a frontier whose point 2 found no plan in its time
+    # did not mention point 2 at all: the chart's list now names it and why.
+    import shutil
+
+    copy = tmp_path / "frontier"
+    shutil.copytree(ring[0].folder, copy)
+    rows = list(csv.DictReader((copy / "frontier.csv").open(encoding="utf-8")))
+    figures = ("total_cost", "avg_transit_h", "max_transit_h", "vehicles", "vehicle_km")
+    rows[1].update({key: "" for key in (*figures, "co2e_kg", "hubs", "gap", "run_dir")})
+    rows[1].update(
+        efficient="false",
+        status="no_solution",
+        note="no plan found within the time limit of 19.752 s",
+    )
+    with (copy / "frontier.csv").open("w", encoding="utf-8", newline="") as fh:
+        writer = csv.DictWriter(fh, fieldnames=list(CSV_COLUMNS), lineterminator="\n")
+        writer.writeheader()
+        writer.writerows(rows)
+    shutil.rmtree(copy / "point-02")
+    page = report_html([copy], tiles="none")
+    assert "point 2 (between): no plan — no plan found within the time limit of 19.752 s" in page
