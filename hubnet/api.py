@@ -12,7 +12,7 @@ from __future__ import annotations
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from hubnet.config import ScenarioConfig, load_config
 from hubnet.data import DistanceMatrix, NetworkData
@@ -20,6 +20,9 @@ from hubnet.distances import distance_matrix
 from hubnet.inputs import load_network
 from hubnet.solution import Solution
 from hubnet.solve import Progress, _quiet, solve_network
+
+if TYPE_CHECKING:
+    from hubnet.freight import PlanBook
 
 
 @dataclass(frozen=True, eq=False)
@@ -61,11 +64,14 @@ def solve_scenario(
     progress: Progress = _quiet,
     *,
     start_hubs: Sequence[str] | None = None,
+    book: PlanBook | None = None,
 ) -> Solution:
     """Solve a loaded scenario and return the priced plan.
 
     ``start_hubs`` (site ids, for example an earlier run's hubs) replaces
     the local-search starting plan given to the solver as its MIP start.
+    ``book`` (freight scenarios only) hands plans of earlier solves of the
+    same network in and takes this one's out (:class:`hubnet.freight.PlanBook`).
     """
     cfg = scenario.config
     if scenario.data.vehicles:
@@ -80,6 +86,7 @@ def solve_scenario(
             scenario=cfg.name,
             progress=progress,
             start_hubs=start_hubs,
+            book=book,
         )
     return solve_network(
         scenario.data,
@@ -101,6 +108,7 @@ def run_scenario(
     progress: Progress = _quiet,
     start_hubs: Sequence[str] | None = None,
     extra_files: Mapping[str, bytes | str] | None = None,
+    book: PlanBook | None = None,
 ) -> tuple[Solution, Path]:
     """Load, solve and write a run folder atomically.
 
@@ -110,7 +118,7 @@ def run_scenario(
     ``map.html`` and ``tables.xlsx`` (:mod:`hubnet.report.runfiles`).
 
     ``config`` may be a scenario already loaded (and edited) with
-    :func:`load_scenario`; ``start_hubs`` is passed to :func:`solve_scenario`;
+    :func:`load_scenario`; ``start_hubs`` and ``book`` are passed to :func:`solve_scenario`;
     ``extra_files`` are added to the run folder (by relative name).
 
     Returns
@@ -128,7 +136,7 @@ def run_scenario(
         scenario = config
     else:
         scenario = load_scenario(config, overrides)
-    sol = solve_scenario(scenario, progress, start_hubs=start_hubs)
+    sol = solve_scenario(scenario, progress, start_hubs=start_hubs, book=book)
     cfg = scenario.config
     text = cfg.source.read_text(encoding="utf-8") if cfg.source is not None else None
     summary = summary_dict(sol, cfg)

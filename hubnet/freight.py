@@ -1329,6 +1329,22 @@ class FreightPlan:
     dispatches: Mapping[LaneKey, float]
 
 
+@dataclass
+class PlanBook:
+    """Plans handed from one solve of a network to the next (the frontier's points).
+
+    Every solve of :func:`solve_freight` given a book prices the plans in
+    it under its own constraints and keeps the cheapest that meets them
+    (the transit cap included) in case its solver finds nothing better;
+    then it adds the plan it returns. The frontier's fastest plan meets
+    every cap, so no capped point is left without a plan (a trial at 20 s a
+    point: one point found none of its own). Only for solves of the same
+    network data: plans hold matrix indices.
+    """
+
+    plans: list[FreightPlan] = field(default_factory=list)
+
+
 def read_plan(model: FreightModel, fp: FreightParams) -> FreightPlan:
     """The plan in the solver's current values (vehicle counts rounded when integer)."""
     hubs = tuple(model.open_hubs())
@@ -1697,6 +1713,7 @@ def solve_freight(
     scenario: str = "",
     progress: Callable[[str], None] | None = None,
     start_hubs: Sequence[str] | None = None,
+    book: PlanBook | None = None,
 ) -> Solution:
     """Choose hubs, routes and vehicles for a network with vehicle classes.
 
@@ -1723,6 +1740,10 @@ def solve_freight(
     start_hubs
         Site ids of an earlier plan's hubs (for example last night's): the
         solver starts from them instead of the local search.
+    book
+        Plans of earlier solves of the same network (:class:`PlanBook`):
+        the cheapest that meets this scenario's constraints is kept as a
+        fallback; the plan returned is added to it.
 
     Raises
     ------
@@ -1800,6 +1821,10 @@ def solve_freight(
             start, kept, fallback = first, "least-transit plan", first_cost
     else:
         fallback = _priced_start(data, st, params, fp, start)
+    for known in book.plans if book is not None else ():
+        cost = _priced_start(data, st, params, fp, known)
+        if cost is not None and (fallback is None or _cheaper(cost, fallback)):
+            start, kept, fallback = known, "plan of an earlier point", cost
     # The starting plan is not handed to the solver as a MIP start: HiGHS 1.16
     # and CBC 2.10 were both seen to stop at a given start and call it optimal
     # with a wrong objective (tests/test_freight.py). It is kept instead, and
@@ -1872,8 +1897,12 @@ def solve_freight(
         status = "optimal" if gap is not None and gap <= opts.gap else stats.status
         stats = dataclasses.replace(stats, status=status, objective=fallback, gap=gap)
         sol = evaluate_freight(data, st, params, fp, start, stats, scenario=scenario)
+        returned: FreightPlan | None = start
     else:  # the whole model's plan stands; its stats gain the re-planning's time and log
         sol = dataclasses.replace(sol, stats=stats)
+        returned = plan
+    if book is not None and returned is not None:
+        book.plans.append(returned)
     return sol
 
 

@@ -59,6 +59,7 @@ from hubnet.errors import (
 if TYPE_CHECKING:
     from hubnet.api import LoadedScenario
     from hubnet.config import ScenarioConfig
+    from hubnet.freight import PlanBook
     from hubnet.solution import Solution
 
 Progress = Callable[[str], None]
@@ -409,15 +410,23 @@ def _point_scenario(
 def _solve_points(
     scenario: LoadedScenario, tmp: Path, points: int, progress: Progress
 ) -> dict[int, FrontierPoint | _Failed]:
-    """Solve the ends, then the capped points, into run folders under ``tmp``."""
+    """Solve the ends, then the capped points, into run folders under ``tmp``.
+
+    The points share one :class:`~hubnet.freight.PlanBook`: each capped
+    point keeps the cheapest earlier plan that meets its cap (the fastest
+    plan meets them all) in case its own solve finds nothing better.
+    """
+    from hubnet.freight import PlanBook
+
     total = points
+    book = PlanBook()
 
     def one(number: int, kind: PointKind, cap: float | None) -> FrontierPoint | _Failed:
         what = kind if cap is None else f"average transit at most {cap:.3f} h"
         progress(f"point {number}/{total} ({what}): solving")
         minimise: Literal["cost", "transit"] = "transit" if kind == "fastest" else "cost"
         result = _solve_point(
-            _point_scenario(scenario, minimise, cap), tmp, number, kind, cap, progress
+            _point_scenario(scenario, minimise, cap), tmp, number, kind, cap, progress, book
         )
         if isinstance(result, _Failed):
             progress(f"point {number}/{total} ({kind}): no plan: {result.status}: {result.line}")
@@ -491,6 +500,7 @@ def _solve_point(
     kind: PointKind,
     cap: float | None,
     progress: Progress,
+    book: PlanBook,
 ) -> FrontierPoint | _Failed:
     from hubnet.api import run_scenario
 
@@ -505,6 +515,7 @@ def _solve_point(
             tmp / name,
             progress=say,
             extra_files={"run.json": _run_json(scenario, kind, cap)},
+            book=book,
         )
     except (InfeasibleError, NoSolutionError, SolverError) as err:
         status = next(s for cls, s in _FAILURES if isinstance(err, cls))

@@ -51,6 +51,7 @@ from __future__ import annotations
 import csv
 import json
 import os
+from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
@@ -387,6 +388,24 @@ def test_report_of_one_point_shows_the_frontier(ring: tuple[Frontier, list[str]]
 # --------------------------------------------------------------------------
 
 
+def _ring_with_solve_model(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch, fake: Callable[..., object]
+) -> tuple[list[dict[str, str]], list[str]]:
+    """A 5-point frontier of the ring with the whole-model solve replaced.
+
+    ``fake(real, *args, **kwargs)`` stands for ``hubnet.freight._solve_model``
+    and may call the real one. Returns the frontier's rows and its progress.
+    """
+    import hubnet.freight as freight
+
+    real = freight._solve_model
+    monkeypatch.setattr(freight, "_solve_model", lambda *a, **k: fake(real, *a, **k))
+    said: list[str] = []
+    config = write_ring(tmp_path / "inputs")
+    frontier = trace_frontier(config, tmp_path / "frontier", points=5, progress=said.append)
+    return rows_of(frontier), said
+
+
 def test_fastest_end_keeps_its_first_stage_plan(
     tmp_path: Path, monkeypatch: pytest.MonkeyPatch
 ) -> None:
@@ -397,24 +416,17 @@ def test_fastest_end_keeps_its_first_stage_plan(
     # every other solve is HiGHS's own. The first stage's plan keeps the cap
     # by construction, so the point must still have a plan, and the points
     # between must still be tried.
-    import hubnet.freight as freight
-
-    real = freight._solve_model
     after_transit = [False]
 
-    def second_stage_times_out(*args: object, **kwargs: object) -> object:
+    def second_stage_times_out(real: Any, *args: object, **kwargs: object) -> object:
         goal = args[-1]
         if goal != "least transit time" and after_transit[0]:
             after_transit[0] = False
             raise NoSolutionError("no plan found within the time limit (injected)")
         after_transit[0] = goal == "least transit time"
-        return real(*args, **kwargs)  # type: ignore[arg-type]
+        return real(*args, **kwargs)
 
-    monkeypatch.setattr(freight, "_solve_model", second_stage_times_out)
-    config = write_ring(tmp_path / "inputs")
-    said: list[str] = []
-    frontier = trace_frontier(config, tmp_path / "frontier", points=5, progress=said.append)
-    rows = rows_of(frontier)
+    rows, said = _ring_with_solve_model(tmp_path, monkeypatch, second_stage_times_out)
     fastest = rows[-1]
     # all ten lanes direct: (5 x 1.5 + 5 x 2.5) / 10 = 2.0 h (as counted by hand above)
     assert fastest["kind"] == "fastest" and fastest["status"] != "no_solution", fastest
@@ -576,3 +588,29 @@ def test_report_names_a_point_without_a_plan(
     shutil.rmtree(copy / "point-02")
     page = report_html([copy], tiles="none")
     assert "point 2 (between): no plan — no plan found within the time limit of 19.752 s" in page
+
+
+def test_capped_points_fall_back_on_the_fastest_plan(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # A trial at 20 s a point found no plan for a capped point although the
+    # fastest plan met its cap. Here every solve of the whole model after the
+    # two ends is made to time out (injected: no test can time that
+    # reliably); the points share their plans, so each capped point keeps the
+    # cheapest earlier plan within its cap, and has a plan.
+    calls = [0]
+
+    def later_solves_time_out(real: Any, *args: object, **kwargs: object) -> object:
+        calls[0] += 1
+        if calls[0] > 3:  # cheapest (1 solve), fastest (2: transit, then cost)
+            raise NoSolutionError("no plan found within the time limit (injected)")
+        return real(*args, **kwargs)
+
+    rows, said = _ring_with_solve_model(tmp_path, monkeypatch, later_solves_time_out)
+    assert calls[0] == 3 + 3  # the three capped points each tried the whole model
+    for row in rows[1:-1]:
+        assert row["status"] != "no_solution" and row["total_cost"], row
+        assert num(row["avg_transit_h"]) <= num(row["avg_transit_cap_h"]) + 1e-6
+        # no dearer than the fastest plan, which meets every cap
+        assert num(row["total_cost"]) <= num(rows[-1]["total_cost"]) + 1e-6
+    assert any("plan of an earlier point" in line for line in said), said
