@@ -190,54 +190,38 @@ def _side_json(ref: RunRef) -> dict[str, Any]:
     }
 
 
-#: Figures compared, as (name shown, path in summary.json).
-FIGURES: tuple[tuple[str, tuple[str, ...]], ...] = (
-    ("status", ("status",)),
-    ("cost per day", ("costs", "total")),
-    ("  hub fixed", ("costs", "hub_fixed")),
-    ("  handling", ("costs", "handling")),
-    ("  collection", ("costs", "collection")),
-    ("  transfer", ("costs", "transfer")),
-    ("  distribution", ("costs", "distribution")),
-    ("  feeder vehicles", ("costs", "feeder")),
-    ("  trunk vehicles", ("costs", "trunk")),
-    ("  direct vehicles", ("costs", "direct")),
-    ("  value of time", ("costs", "time")),
-    ("  carbon price", ("costs", "carbon_in_vehicles")),
-    ("objective", ("objective",)),
-    ("best bound", ("best_bound",)),
-    ("gap", ("gap",)),
-    ("hubs", ("hub_count",)),
-    ("volume per day", ("total_volume",)),
-    ("unit-km per day", ("unit_km",)),
-    ("trunk legs", ("legs_by_tier", "trunk")),
-    ("feeder legs", ("legs_by_tier", "feeder")),
-    ("direct legs", ("legs_by_tier", "direct")),
-    ("vehicles per day", ("vehicles",)),
-    ("vehicle-km per day", ("vehicle_km",)),
-    ("average transit h", ("avg_transit_h",)),
-    ("longest transit h", ("max_transit_h",)),
-    ("CO2e kg per day", ("co2e_kg",)),
-    ("solve seconds", ("solve_seconds",)),
-)
-#: Figures shown only when a side has them: the classic model's cost parts
-#: and the freight model's figures (each model leaves the other's out).
-MODEL_FIGURES = frozenset(
-    {
-        "  collection",
-        "  transfer",
-        "  distribution",
-        "  feeder vehicles",
-        "  trunk vehicles",
-        "  direct vehicles",
-        "  value of time",
-        "  carbon price",
-        "vehicles per day",
-        "vehicle-km per day",
-        "average transit h",
-        "longest transit h",
-        "CO2e kg per day",
-    }
+#: Figures compared, as (name shown, path in summary.json, shown always).
+#: A figure not shown always (the classic model's cost parts, the freight
+#: model's figures: each model leaves the other's out) is shown only when a
+#: side has it.
+FIGURES: tuple[tuple[str, tuple[str, ...], bool], ...] = (
+    ("status", ("status",), True),
+    ("cost per day", ("costs", "total"), True),
+    ("  hub fixed", ("costs", "hub_fixed"), True),
+    ("  handling", ("costs", "handling"), True),
+    ("  collection", ("costs", "collection"), False),
+    ("  transfer", ("costs", "transfer"), False),
+    ("  distribution", ("costs", "distribution"), False),
+    ("  feeder vehicles", ("costs", "feeder"), False),
+    ("  trunk vehicles", ("costs", "trunk"), False),
+    ("  direct vehicles", ("costs", "direct"), False),
+    ("  value of time", ("costs", "time"), False),
+    ("  carbon price", ("costs", "carbon_in_vehicles"), False),
+    ("objective", ("objective",), True),
+    ("best bound", ("best_bound",), True),
+    ("gap", ("gap",), True),
+    ("hubs", ("hub_count",), True),
+    ("volume per day", ("total_volume",), True),
+    ("unit-km per day", ("unit_km",), True),
+    ("trunk legs", ("legs_by_tier", "trunk"), True),
+    ("feeder legs", ("legs_by_tier", "feeder"), True),
+    ("direct legs", ("legs_by_tier", "direct"), True),
+    ("vehicles per day", ("vehicles",), False),
+    ("vehicle-km per day", ("vehicle_km",), False),
+    ("average transit h", ("avg_transit_h",), False),
+    ("longest transit h", ("max_transit_h",), False),
+    ("CO2e kg per day", ("co2e_kg",), False),
+    ("solve seconds", ("solve_seconds",), True),
 )
 
 
@@ -348,8 +332,8 @@ def compare_runs(a: RunRef, b: RunRef) -> RunComparison:
     sa, sb = _summary_of(a), _summary_of(b)
     figures = tuple(
         _change(name, _get(sa, p), _get(sb, p))
-        for name, p in FIGURES
-        if name not in MODEL_FIGURES or _get(sa, p) is not None or _get(sb, p) is not None
+        for name, p, always in FIGURES
+        if always or _get(sa, p) is not None or _get(sb, p) is not None
     )
     ha, hb = a.hubs, b.hubs
     opened = tuple(h for h in hb if h not in ha)

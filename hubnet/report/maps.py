@@ -75,7 +75,7 @@ from hubnet.report.fmt import (
     status_text,
     tier_colour,
 )
-from hubnet.report.outlines import OUTLINES_CREDIT, outlines_near
+from hubnet.report.outlines import MIN_MARGIN_DEG, OUTLINES_CREDIT, outlines_near
 from hubnet.report.rundata import RunData, coordinates, is_planar, read_run
 
 if TYPE_CHECKING:
@@ -95,8 +95,6 @@ DEFAULT_TILES = "outline"
 #: Deepest zoom of a map on geographic coordinates (street level; the tile
 #: layers' own limits are 16-19).
 MAX_ZOOM = 18
-#: Least margin (degrees) around the sites within which countries are drawn.
-OUTLINE_MARGIN_DEG = 6.0
 #: Colours of the outline base map: sea, land and borders.
 SEA_COLOUR = "#dce6ee"
 LAND_COLOUR = "#f7f7f4"
@@ -704,7 +702,7 @@ def _add_outlines(m: folium.Map, points: list[tuple[float, float]]) -> None:
     # once zoomed out, so the margin grows with the network's extent.
     span = max(max(lats) - min(lats), max(lons) - min(lons))
     shapes = outlines_near(
-        min(lats), min(lons), max(lats), max(lons), margin_deg=max(OUTLINE_MARGIN_DEG, span)
+        min(lats), min(lons), max(lats), max(lons), margin_deg=max(MIN_MARGIN_DEG, span)
     )
     style = {
         "fillColor": LAND_COLOUR,
@@ -967,9 +965,11 @@ def build_map(run: RunData, *, tiles: str = DEFAULT_TILES, compact: bool = False
         # the map needs its own, or a lone site (or sites a few metres apart)
         # is fitted at an endless zoom.
         m.options["max_zoom"] = MAX_ZOOM
+    # Outlines are in degrees: no base map under planar x/y.
+    outlined = tiles == "outline" and not planar
     if tiles in TILE_PROVIDERS and not planar:
         folium.TileLayer(TILE_PROVIDERS[tiles], name="Base map", control=False).add_to(m)
-    if tiles == "outline" and not planar:
+    if outlined:
         _add_outlines(m, list(where.values()))
     CustomPane("hubnetLegs", z_index=410, pointer_events=True).add_to(m)
     CustomPane("hubnetSites", z_index=420, pointer_events=True).add_to(m)
@@ -1133,7 +1133,7 @@ def build_map(run: RunData, *, tiles: str = DEFAULT_TILES, compact: bool = False
     )
     root.header.add_child(Element(f"<script>{leaflet_js()}</script>"), "leaflet_js_inline")
     root.header.add_child(Element(f"<style>{_STYLE}</style>"), "hubnet_style")
-    if tiles == "outline" and not planar:
+    if outlined:
         root.header.add_child(
             Element(f"<style>html .leaflet-container {{ background: {SEA_COLOUR}; }}</style>"),
             "hubnet_sea",

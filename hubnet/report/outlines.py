@@ -18,6 +18,8 @@ from typing import Any
 
 #: Package data file holding the outlines (GeoJSON, WGS84 degrees).
 OUTLINES_FILE = "countries_110m.geojson"
+#: Least margin (degrees) around the sites within which countries are drawn.
+MIN_MARGIN_DEG = 6.0
 #: Shown in the map's attribution line.
 OUTLINES_CREDIT = "Country outlines: Natural Earth (public domain)"
 
@@ -47,7 +49,7 @@ def _polygons() -> tuple[tuple[tuple[float, float, float, float], str, Any], ...
 
 
 def outlines_near(
-    south: float, west: float, north: float, east: float, margin_deg: float = 6.0
+    south: float, west: float, north: float, east: float, margin_deg: float = MIN_MARGIN_DEG
 ) -> dict[str, Any]:
     """The country polygons whose bounding box meets the given box widened by ``margin_deg``.
 
@@ -73,4 +75,4 @@ def outlines_near(
     return {"type": "FeatureCollection", "features": features}
 
 
-__all__ = ["OUTLINES_CREDIT", "OUTLINES_FILE", "outlines_near"]
+__all__ = ["MIN_MARGIN_DEG", "OUTLINES_CREDIT", "OUTLINES_FILE", "outlines_near"]
